@@ -1,0 +1,606 @@
+package forest
+
+import (
+	"cmp"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"sync/atomic"
+)
+
+// errStopped is returned by a grower whose training was cancelled.
+var errStopped = errors.New("forest: training stopped")
+
+// trainSet is the binned, read-only view of a data set that growers share.
+type trainSet struct {
+	rows    int
+	cols    []binnedColumn
+	bins    []Binning
+	task    Task
+	classes int
+	ycls    []int32   // classification target
+	yreg    []float64 // regression target
+	// stat is the histogram width per bin: class weights, or (W, Σwy).
+	stat int
+	// width of a node's totals: class weights, or (W, Σwy, Σwy²).
+	totalWidth int
+	score      func([]float64) float64
+	impurity   Impurity
+}
+
+// weightOf is the weight held by histogram statistics s.
+func (ts *trainSet) weightOf(s []float64) float64 {
+	if ts.task == Regression {
+		return s[0]
+	}
+	w := 0.0
+	for _, v := range s {
+		w += v
+	}
+	return w
+}
+
+// growConfig holds the stopping rules of one training run.
+type growConfig struct {
+	maxDepth int // 0: unlimited
+	minLeaf  float64
+	minGain  float64 // share of the root weight
+	mtry     int     // features drawn per split
+}
+
+// pending is a node waiting on the grower's stack; its rows are rows[start:end].
+type pending struct {
+	node       int32
+	start, end int32
+	depth      int32
+}
+
+// catEntry is one value bin of a categorical feature at a node, with its sort key.
+type catEntry struct {
+	bin int
+	key float64
+}
+
+// grower grows trees one at a time; each worker owns one, so nothing in it is shared.
+type grower struct {
+	set    *trainSet
+	cfg    growConfig
+	rng    *rand.Rand
+	cancel *atomic.Bool
+
+	rows    []int32   // the tree's rows; each node owns a contiguous range
+	wts     []float64 // their weights, kept in step with rows
+	tmpRows []int32
+	tmpW    []float64
+
+	hist         []float64 // one feature's histogram, all zero between uses
+	cum, l, r    []float64 // stat-wide scratch
+	zeros        []float64 // stat-wide, always zero: the missing bin of nodes without missing values
+	cur          []float64 // totals of the node being split
+	order        []int     // feature draw order
+	cat          []catEntry
+	inLeft, here []bool // per-bin scratch for categorical splits
+	best         splitInfo
+	parentScore  float64 // score of the node being split
+	stack        []pending
+	totals       []float64 // totals of stack entry k at k*totalWidth
+}
+
+func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
+	maxBins := 0
+	for i := range set.bins {
+		maxBins = max(maxBins, set.bins[i].NumBins())
+	}
+	S, T := set.stat, set.totalWidth
+	return &grower{
+		set: set, cfg: cfg, cancel: cancel,
+		tmpRows: make([]int32, set.rows),
+		tmpW:    make([]float64, set.rows),
+		hist:    make([]float64, maxBins*S),
+		cum:     make([]float64, S),
+		zeros:   make([]float64, S),
+		l:       make([]float64, T),
+		r:       make([]float64, T),
+		cur:     make([]float64, T),
+		order:   make([]int, len(set.cols)),
+		inLeft:  make([]bool, maxBins),
+		here:    make([]bool, maxBins),
+	}
+}
+
+// grow fits one tree to rows with weights wts (both are reordered in place).
+func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error) {
+	set := g.set
+	T := set.totalWidth
+	g.rows, g.wts, g.rng = rows, wts, rng
+	for i := range g.order {
+		g.order[i] = i
+	}
+	width := 1
+	if set.task == Classification {
+		width = set.classes
+	}
+	t := &Tree{Width: width}
+	g.stack = append(g.stack[:0], pending{node: t.addNode(width), start: 0, end: int32(len(rows))})
+	g.totals = slices.Grow(g.totals[:0], T)[:T]
+	g.nodeTotals(0, len(rows), g.totals[:T])
+	rootW := g.weight(g.totals[:T])
+	minGain := g.cfg.minGain * rootW
+	// Gains are differences of sums over the node; allow for their rounding.
+	tol := 1e-12 * math.Max(1, math.Abs(set.score(g.totals[:set.stat])))
+
+	for len(g.stack) > 0 {
+		if g.cancel != nil && g.cancel.Load() {
+			return nil, errStopped
+		}
+		k := len(g.stack) - 1
+		e := g.stack[k]
+		g.stack = g.stack[:k]
+		copy(g.cur, g.totals[k*T:(k+1)*T])
+		w := g.weight(g.cur)
+		t.Cover[e.node] = w
+		g.setValue(t, int(e.node), w)
+		if !g.splittable(e, w) {
+			continue
+		}
+		g.parentScore = set.score(g.cur[:set.stat])
+		g.findSplit(e)
+		if !g.best.valid() || g.best.gain < minGain-tol {
+			continue
+		}
+		nl := g.partition(e, &g.best)
+		mid := e.start + int32(nl)
+		g.nodeTotals(int(e.start), int(mid), g.l)
+		g.nodeTotals(int(mid), int(e.end), g.r)
+		if !g.best.hasMissing {
+			// No missing values here: send future ones to the heavier side.
+			g.best.missingLeft = g.weight(g.l) >= g.weight(g.r)
+		}
+		left := t.addNode(width)
+		t.addNode(width)
+		n := &t.Nodes[e.node]
+		n.Left, n.Feature = left, int32(g.best.feature)
+		n.DefaultLeft = g.best.missingLeft
+		t.Gain[e.node] = math.Max(g.best.gain, 0)
+		if g.best.categorical {
+			n.LevelSet = int32(len(t.LevelSets))
+			t.LevelSets = append(t.LevelSets, g.levelSet(&g.best))
+		} else {
+			n.Threshold = set.bins[g.best.feature].Upper[g.best.bin-1]
+		}
+		d := e.depth + 1
+		g.push(pending{node: left + 1, start: mid, end: e.end, depth: d}, g.r)
+		g.push(pending{node: left, start: e.start, end: mid, depth: d}, g.l)
+	}
+	return t, nil
+}
+
+func (g *grower) push(p pending, totals []float64) {
+	g.stack = append(g.stack, p)
+	g.totals = append(g.totals[:(len(g.stack)-1)*g.set.totalWidth], totals...)
+}
+
+func (g *grower) weight(totals []float64) float64 {
+	if g.set.task == Regression {
+		return totals[0]
+	}
+	return g.set.weightOf(totals)
+}
+
+// splittable holds the stopping rules: depth, leaf weight, rows, purity.
+func (g *grower) splittable(e pending, w float64) bool {
+	if g.cfg.maxDepth > 0 && int(e.depth) >= g.cfg.maxDepth {
+		return false
+	}
+	if e.end-e.start < 2 || w < 2*g.cfg.minLeaf {
+		return false
+	}
+	if g.set.task == Regression {
+		mean := g.cur[1] / w
+		mse := g.cur[2]/w - mean*mean
+		return mse > 1e-14*math.Max(g.cur[2]/w, math.SmallestNonzeroFloat64)
+	}
+	classes := 0
+	for _, c := range g.cur {
+		if c > 0 {
+			classes++
+		}
+	}
+	return classes > 1
+}
+
+// nodeTotals sums the statistics of rows[start:end] into dst.
+func (g *grower) nodeTotals(start, end int, dst []float64) {
+	clear(dst)
+	rows, wts := g.rows[start:end], g.wts[start:end]
+	if g.set.task == Regression {
+		y := g.set.yreg
+		for i, r := range rows {
+			w, v := wts[i], y[r]
+			dst[0] += w
+			dst[1] += w * v
+			dst[2] += w * v * v
+		}
+		return
+	}
+	y := g.set.ycls
+	for i, r := range rows {
+		dst[y[r]] += wts[i]
+	}
+}
+
+func (g *grower) setValue(t *Tree, node int, w float64) {
+	v := t.NodeValue(node)
+	if g.set.task == Regression {
+		v[0] = g.cur[1] / w
+		return
+	}
+	for k := range v {
+		v[k] = g.cur[k] / w
+	}
+}
+
+// findSplit leaves the best split of node e in g.best. A forest draws features one at a
+// time; once it has looked at mtry of them it stops at the first valid split, so a node
+// whose drawn features are all constant keeps drawing (as Breiman's reference code does).
+func (g *grower) findSplit(e pending) {
+	g.best.feature, g.best.gain = -1, math.Inf(-1)
+	p := len(g.order)
+	for k := 0; k < p; k++ {
+		if k >= g.cfg.mtry && g.best.valid() {
+			break
+		}
+		f := k
+		if g.cfg.mtry < p {
+			j := k + g.rng.IntN(p-k)
+			g.order[k], g.order[j] = g.order[j], g.order[k]
+			f = g.order[k]
+		}
+		g.evaluate(f, e)
+	}
+}
+
+// evaluate builds feature f's histogram over node e and scans it.
+func (g *grower) evaluate(f int, e pending) {
+	set := g.set
+	S := set.stat
+	col := &set.cols[f]
+	rows, wts := g.rows[e.start:e.end], g.wts[e.start:e.end]
+	var lo, hi int
+	if set.task == Regression {
+		if col.u8 != nil {
+			lo, hi = histRegression(g.hist, col.u8, rows, wts, set.yreg)
+		} else {
+			lo, hi = histRegression(g.hist, col.u16, rows, wts, set.yreg)
+		}
+	} else {
+		if col.u8 != nil {
+			lo, hi = histClasses(g.hist, col.u8, rows, wts, set.ycls, S)
+		} else {
+			lo, hi = histClasses(g.hist, col.u16, rows, wts, set.ycls, S)
+		}
+	}
+	h := g.hist[:(hi+1)*S]
+	if set.bins[f].Kind == Categorical {
+		g.scanCategorical(f, h, lo, hi)
+	} else {
+		g.scanNumeric(f, h, lo, hi)
+	}
+	clear(g.hist[lo*S : (hi+1)*S])
+}
+
+// histClasses adds each row's weight to its bin and class; it returns the lowest and
+// highest bin seen.
+func histClasses[B uint8 | uint16](h []float64, col []B, rows []int32, wts []float64, y []int32, classes int) (lo, hi int) {
+	lo, hi = math.MaxInt, 0
+	for i, r := range rows {
+		b := int(col[r])
+		h[b*classes+int(y[r])] += wts[i]
+		lo, hi = min(lo, b), max(hi, b)
+	}
+	return lo, hi
+}
+
+// histRegression adds each row's (w, wy) to its bin.
+func histRegression[B uint8 | uint16](h []float64, col []B, rows []int32, wts []float64, y []float64) (lo, hi int) {
+	lo, hi = math.MaxInt, 0
+	for i, r := range rows {
+		b := int(col[r])
+		w := wts[i]
+		h[2*b] += w
+		h[2*b+1] += w * y[r]
+		lo, hi = min(lo, b), max(hi, b)
+	}
+	return lo, hi
+}
+
+// consider scores the candidate left = cum (+ missing when missingLeft) against the rest.
+func (g *grower) consider(f int, miss []float64, missingLeft bool) (float64, bool) {
+	set := g.set
+	S := set.stat
+	l, r := g.l[:S], g.r[:S]
+	for k := range S {
+		l[k] = g.cum[k]
+		r[k] = g.cur[k] - miss[k] - g.cum[k]
+		if missingLeft {
+			l[k] += miss[k]
+		} else {
+			r[k] += miss[k]
+		}
+	}
+	wl, wr := set.weightOf(l), set.weightOf(r)
+	if wl < g.cfg.minLeaf || wr < g.cfg.minLeaf {
+		return 0, false
+	}
+	gain := set.score(l) + set.score(r) - g.parentScore
+	return gain, g.best.better(gain, f)
+}
+
+func (g *grower) scanNumeric(f int, h []float64, lo, hi int) {
+	set := g.set
+	S := set.stat
+	miss, wm := g.zeros, 0.0
+	if lo == 0 {
+		miss = h[:S]
+		wm = set.weightOf(miss)
+	}
+	switch {
+	case set.task == Regression:
+		g.scanRegression(f, h, max(lo, 1), hi, miss)
+		return
+	case S == 2 && set.impurity == Gini:
+		g.scanBinaryGini(f, h, max(lo, 1), hi, miss)
+		return
+	}
+	clear(g.cum)
+	for b := max(lo, 1); b <= hi; b++ {
+		hb := h[b*S : (b+1)*S]
+		if set.weightOf(hb) == 0 {
+			continue
+		}
+		for k := range S {
+			g.cum[k] += hb[k]
+		}
+		for _, missingLeft := range [2]bool{false, true} {
+			if missingLeft && wm == 0 {
+				break
+			}
+			if gain, ok := g.consider(f, miss, missingLeft); ok {
+				g.setNumeric(f, gain, b, missingLeft, wm > 0)
+			}
+		}
+	}
+}
+
+func (g *grower) setNumeric(f int, gain float64, bin int, missingLeft, hasMissing bool) {
+	g.best = splitInfo{feature: f, gain: gain, bin: bin, missingLeft: missingLeft,
+		hasMissing: hasMissing, leftBins: g.best.leftBins[:0], present: g.best.present[:0]}
+}
+
+// scanBinaryGini is scanNumeric for two classes and Gini, the common case, with the
+// score Σc²/W written out.
+func (g *grower) scanBinaryGini(f int, h []float64, lo, hi int, miss []float64) {
+	m0, m1 := miss[0], miss[1]
+	t0, t1 := g.cur[0]-m0, g.cur[1]-m1
+	hasMissing := m0+m1 > 0
+	minLeaf, parent := g.cfg.minLeaf, g.parentScore
+	var a0, a1 float64
+	for b := lo; b <= hi; b++ {
+		h0, h1 := h[2*b], h[2*b+1]
+		if h0+h1 == 0 {
+			continue
+		}
+		a0 += h0
+		a1 += h1
+		r0, r1 := t0-a0, t1-a1
+		wl, wr := a0+a1, r0+r1
+		// Missing values right.
+		if wl >= minLeaf && wr+m0+m1 >= minLeaf {
+			x0, x1 := r0+m0, r1+m1
+			gain := (a0*a0+a1*a1)/wl + (x0*x0+x1*x1)/(wr+m0+m1) - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, false, hasMissing)
+			}
+		}
+		// Missing values left.
+		if hasMissing && wl+m0+m1 >= minLeaf && wr >= minLeaf {
+			x0, x1 := a0+m0, a1+m1
+			gain := (x0*x0+x1*x1)/(wl+m0+m1) + (r0*r0+r1*r1)/wr - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, true, hasMissing)
+			}
+		}
+	}
+}
+
+// scanRegression is scanNumeric for squared error: statistics (W, Σwy), score (Σwy)²/W.
+func (g *grower) scanRegression(f int, h []float64, lo, hi int, miss []float64) {
+	mw, ms := miss[0], miss[1]
+	tw, ts := g.cur[0]-mw, g.cur[1]-ms
+	hasMissing := mw > 0
+	minLeaf, parent := g.cfg.minLeaf, g.parentScore
+	var aw, as float64
+	for b := lo; b <= hi; b++ {
+		hw := h[2*b]
+		if hw == 0 {
+			continue
+		}
+		aw += hw
+		as += h[2*b+1]
+		rw, rs := tw-aw, ts-as
+		if aw >= minLeaf && rw+mw >= minLeaf {
+			gain := as*as/aw + (rs+ms)*(rs+ms)/(rw+mw) - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, false, hasMissing)
+			}
+		}
+		if hasMissing && aw+mw >= minLeaf && rw >= minLeaf {
+			gain := (as+ms)*(as+ms)/(aw+mw) + rs*rs/rw - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, true, hasMissing)
+			}
+		}
+	}
+}
+
+// scanCategorical orders the node's levels by their target statistic and scans that
+// order as if it were numeric. For a binary target or regression the best subset split
+// is a prefix of this order (Fisher 1958; Breiman et al. 1984, §9.4). With more classes
+// it tries, for each class, the order by that class's share, and keeps the best cut.
+func (g *grower) scanCategorical(f int, h []float64, lo, hi int) {
+	set := g.set
+	S := set.stat
+	miss, wm := g.zeros, 0.0
+	if lo == 0 {
+		miss = h[:S]
+		wm = set.weightOf(miss)
+	}
+	g.cat = g.cat[:0]
+	for b := max(lo, 1); b <= hi; b++ {
+		if set.weightOf(h[b*S:(b+1)*S]) > 0 {
+			g.cat = append(g.cat, catEntry{bin: b})
+		}
+	}
+	if len(g.cat) < 2 && wm == 0 {
+		return
+	}
+	orders := 1
+	if set.task == Classification && set.classes > 2 {
+		orders = set.classes
+	}
+	for o := range orders {
+		for i := range g.cat {
+			hb := h[g.cat[i].bin*S : (g.cat[i].bin+1)*S]
+			w := set.weightOf(hb)
+			switch {
+			case set.task == Regression:
+				g.cat[i].key = hb[1] / w
+			case set.classes == 2:
+				g.cat[i].key = hb[1] / w
+			default:
+				g.cat[i].key = hb[o] / w
+			}
+		}
+		slices.SortFunc(g.cat, func(a, b catEntry) int {
+			if c := cmp.Compare(a.key, b.key); c != 0 {
+				return c
+			}
+			return cmp.Compare(a.bin, b.bin)
+		})
+		clear(g.cum)
+		for i := range g.cat {
+			hb := h[g.cat[i].bin*S : (g.cat[i].bin+1)*S]
+			for k := range S {
+				g.cum[k] += hb[k]
+			}
+			for _, missingLeft := range [2]bool{false, true} {
+				if missingLeft && wm == 0 {
+					break
+				}
+				if gain, ok := g.consider(f, miss, missingLeft); ok {
+					b := &g.best
+					b.feature, b.gain, b.bin, b.missingLeft = f, gain, 0, missingLeft
+					b.categorical, b.hasMissing = true, wm > 0
+					b.leftBins, b.present = b.leftBins[:0], b.present[:0]
+					for _, c := range g.cat[:i+1] {
+						b.leftBins = append(b.leftBins, c.bin)
+					}
+					for _, c := range g.cat {
+						b.present = append(b.present, c.bin)
+					}
+				}
+			}
+		}
+	}
+}
+
+// partition moves the rows of node e that go left to the front of its range, keeping
+// row order on each side (so later passes read the columns in increasing address
+// order), and returns how many went left.
+func (g *grower) partition(e pending, s *splitInfo) int {
+	col := &g.set.cols[s.feature]
+	rows, wts := g.rows[e.start:e.end], g.wts[e.start:e.end]
+	if s.categorical {
+		left := g.inLeft
+		left[0] = s.missingLeft
+		for _, b := range s.leftBins {
+			left[b] = true
+		}
+		var n int
+		if col.u8 != nil {
+			n = partitionBy(col.u8, rows, wts, g.tmpRows, g.tmpW, func(b int) bool { return left[b] })
+		} else {
+			n = partitionBy(col.u16, rows, wts, g.tmpRows, g.tmpW, func(b int) bool { return left[b] })
+		}
+		clear(left)
+		return n
+	}
+	t, ml := s.bin, s.missingLeft
+	goLeft := func(b int) bool {
+		if b == 0 {
+			return ml
+		}
+		return b <= t
+	}
+	if col.u8 != nil {
+		return partitionBy(col.u8, rows, wts, g.tmpRows, g.tmpW, goLeft)
+	}
+	return partitionBy(col.u16, rows, wts, g.tmpRows, g.tmpW, goLeft)
+}
+
+func partitionBy[B uint8 | uint16](col []B, rows []int32, wts []float64, tmpRows []int32, tmpW []float64, goLeft func(int) bool) int {
+	nl, nr := 0, 0
+	for i, r := range rows {
+		if goLeft(int(col[r])) {
+			rows[nl], wts[nl] = r, wts[i]
+			nl++
+		} else {
+			tmpRows[nr], tmpW[nr] = r, wts[i]
+			nr++
+		}
+	}
+	copy(rows[nl:], tmpRows[:nr])
+	copy(wts[nl:], tmpW[:nr])
+	return nl
+}
+
+// levelSet turns a categorical split over bins into a bit set over level codes: levels in
+// a left bin go left; levels of other bins present at the node go right; levels absent
+// from the node or never seen follow the default direction, as do the padding bits.
+func (g *grower) levelSet(s *splitInfo) []uint64 {
+	lb := g.set.bins[s.feature].LevelBin
+	for _, b := range s.present {
+		g.here[b] = true
+	}
+	for _, b := range s.leftBins {
+		g.inLeft[b] = true
+	}
+	words := max(1, (len(lb)+63)/64)
+	bits := make([]uint64, words)
+	for code := 0; code < words*64; code++ {
+		left := s.missingLeft
+		if code < len(lb) {
+			if b := lb[code]; b != 0 && g.here[b] {
+				left = g.inLeft[b]
+			}
+		}
+		if left {
+			bits[code>>6] |= 1 << (code & 63)
+		}
+	}
+	clear(g.here)
+	clear(g.inLeft)
+	return bits
+}
+
+// addNode appends a leaf with room for its value and returns its index.
+func (t *Tree) addNode(width int) int32 {
+	t.Nodes = append(t.Nodes, Node{Left: -1, LevelSet: -1})
+	t.Gain = append(t.Gain, 0)
+	t.Cover = append(t.Cover, 0)
+	for range width {
+		t.Value = append(t.Value, 0)
+	}
+	return int32(len(t.Nodes) - 1)
+}

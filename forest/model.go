@@ -1,0 +1,172 @@
+package forest
+
+import (
+	"fmt"
+	"math"
+	"sync"
+	"sync/atomic"
+)
+
+// FeatureInfo describes one input of a model.
+type FeatureInfo struct {
+	Name    string
+	Kind    Kind
+	Levels  []string // Categorical: level names, indexed by code
+	Binning Binning  // the training distribution over bins
+}
+
+// Model is a fitted ensemble. It is read-only after Train or Decode, so any number of
+// goroutines may predict with it at once.
+type Model struct {
+	Method   Method
+	Task     Task
+	Target   string
+	Classes  []string // Classification: class names; with two, Classes[1] is positive
+	Features []FeatureInfo
+	Params   Params // as trained, with Threads and Progress cleared
+	Rows     int    // training rows
+	Trees    []*Tree
+
+	OOB        *OOB // nil for MethodTree
+	Importance Importance
+}
+
+// Width is how many numbers a prediction holds: one per class, or one value.
+func (m *Model) Width() int {
+	if m.Task == Classification {
+		return len(m.Classes)
+	}
+	return 1
+}
+
+// finish checks the invariants Predict relies on; Train and Decode call it.
+func (m *Model) finish() {}
+
+// PredictRow writes the prediction for one row into dst, which must hold Width numbers,
+// and returns it: class probabilities averaged over trees, or the mean value. A row holds
+// one number per feature in model order: categorical features as level codes, NaN (or a
+// negative code) for missing values. It does not allocate.
+func (m *Model) PredictRow(row, dst []float64) []float64 {
+	dst = dst[:m.Width()]
+	clear(dst)
+	for _, t := range m.Trees {
+		v := t.NodeValue(t.Leaf(row))
+		for k := range dst {
+			dst[k] += v[k]
+		}
+	}
+	inv := 1 / float64(len(m.Trees))
+	for k := range dst {
+		dst[k] *= inv
+	}
+	return dst
+}
+
+// predictBlockRows is how many rows Predict carries through one tree at a time: enough
+// to keep a tree's upper nodes in cache across rows, few enough that the block's inputs
+// (rows × features numbers) stay in the core's L2 cache.
+const predictBlockRows = 2048
+
+// Predict scores rows given column by column (cols[f][i] is feature f of row i, coded as
+// for PredictRow) into out, Width numbers per row, on up to threads goroutines (0: one).
+// The result equals PredictRow's, row for row.
+func (m *Model) Predict(cols [][]float64, out []float64, threads int) error {
+	if len(cols) != len(m.Features) {
+		return fmt.Errorf("forest: predict: %d columns, the model has %d features", len(cols), len(m.Features))
+	}
+	n := 0
+	if len(cols) > 0 {
+		n = len(cols[0])
+	}
+	for f, c := range cols {
+		if len(c) != n {
+			return fmt.Errorf("forest: predict: column %q has %d rows, want %d", m.Features[f].Name, len(c), n)
+		}
+	}
+	W := m.Width()
+	if len(out) < n*W {
+		return fmt.Errorf("forest: predict: output holds %d numbers, want %d", len(out), n*W)
+	}
+	blocks := (n + predictBlockRows - 1) / predictBlockRows
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range min(blocks, max(threads, 1)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			p := len(cols)
+			block := make([]float64, predictBlockRows*p)
+			leaves := make([]int32, predictBlockRows)
+			for {
+				b := int(next.Add(1) - 1)
+				if b >= blocks {
+					return
+				}
+				lo := b * predictBlockRows
+				hi := min(n, lo+predictBlockRows)
+				for f, c := range cols {
+					for i := lo; i < hi; i++ {
+						block[(i-lo)*p+f] = c[i]
+					}
+				}
+				m.predictBlock(block[:(hi-lo)*p], p, out[lo*W:hi*W], leaves)
+			}
+		}()
+	}
+	wg.Wait()
+	return nil
+}
+
+// predictBlock scores row-major rows, tree by tree, into out.
+func (m *Model) predictBlock(rows []float64, p int, out []float64, leaves []int32) {
+	W := m.Width()
+	clear(out)
+	n := len(rows) / p
+	leaves = leaves[:n]
+	for _, t := range m.Trees {
+		t.LeafBatch(rows, p, leaves)
+		if W == 1 {
+			for i, leaf := range leaves {
+				out[i] += t.Value[leaf]
+			}
+			continue
+		}
+		for i, leaf := range leaves {
+			v := t.Value[int(leaf)*W : int(leaf+1)*W]
+			o := out[i*W : (i+1)*W]
+			for k := range o {
+				o[k] += v[k]
+			}
+		}
+	}
+	inv := 1 / float64(len(m.Trees))
+	for i := range out {
+		out[i] *= inv
+	}
+}
+
+// Class returns the index of the most probable class in a classification prediction
+// (the lower index on ties).
+func Class(pred []float64) int {
+	best := 0
+	for k, v := range pred {
+		if v > pred[best] {
+			best = k
+		}
+	}
+	return best
+}
+
+// rowOf fills dst with row i of a data set in model coding.
+func rowOf(d *Dataset, i int, dst []float64) {
+	for f := range d.features {
+		c := &d.features[f]
+		if c.kind == Numeric {
+			dst[f] = c.num[i]
+		} else if code := c.codes[i]; code >= 0 {
+			dst[f] = float64(code)
+		} else {
+			dst[f] = math.NaN()
+		}
+	}
+}

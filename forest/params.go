@@ -1,0 +1,187 @@
+package forest
+
+import (
+	"fmt"
+	"math"
+)
+
+// Method names how trees are grown and combined.
+type Method string
+
+// The methods this package trains.
+const (
+	// MethodTree grows one tree on every row, considering every feature at each split.
+	MethodTree Method = "tree"
+	// MethodBagging grows each tree on a resample of the rows, every feature at each split
+	// (Breiman 1996).
+	MethodBagging Method = "bagging"
+	// MethodForest is bagging plus a fresh random subset of features at each split
+	// (Breiman 2001).
+	MethodForest Method = "forest"
+)
+
+// Task is what the target asks for.
+type Task string
+
+// The tasks.
+const (
+	Classification Task = "classification"
+	Regression     Task = "regression"
+)
+
+// Impurity is the node impurity a classification split minimises.
+// Regression always uses squared error.
+type Impurity string
+
+// The impurity measures.
+const (
+	Gini    Impurity = "gini"
+	Entropy Impurity = "entropy"
+)
+
+// Defaults, in one place. Fully grown trees and √p (classification) or p/3 (regression)
+// features per split follow Breiman (2001) and the reference implementations of his forest.
+const (
+	DefaultTrees       = 100
+	DefaultMinLeaf     = 1.0
+	DefaultBins        = 255 // one byte per cell together with the missing-value bin
+	DefaultRowFraction = 1.0
+	DefaultSeed        = 1
+	// DefaultPermutationRows caps the out-of-bag rows each tree uses for permutation
+	// importance: the cost is trees × features × rows × depth node visits, and the mean
+	// over many trees is stable well before every row is used.
+	DefaultPermutationRows = 10000
+
+	MaxBins = 65535 // bin codes are uint16 at most, with one code kept for missing values
+)
+
+// Params are the training controls. Start from [DefaultParams]; a zero field keeps the
+// default that its comment names.
+type Params struct {
+	Method Method
+	// Task is taken from the target when empty: categorical targets classify.
+	Task     Task
+	Impurity Impurity // classification only; default Gini
+	// Trees is the number of trees (always 1 for MethodTree).
+	Trees int
+	// MaxDepth limits tree depth (root = depth 0); 0 means unlimited.
+	MaxDepth int
+	// MinLeaf is the least weight a leaf may hold; unweighted, that is a row count
+	// (bootstrap copies count once each).
+	MinLeaf float64
+	// MinGain is the least impurity decrease a split must bring, as a share of the
+	// root's weight (the decrease at the node × node weight / root weight).
+	MinGain float64
+	// FeaturesPerSplit: 0 for the method's default, a count when ≥ 1, a fraction of the
+	// features when in (0, 1).
+	FeaturesPerSplit float64
+	// RowFraction is the share of rows drawn for each tree (bagging and forests).
+	RowFraction float64
+	// WithReplacement draws rows with replacement (the bootstrap) when true.
+	WithReplacement bool
+	// Bins is the largest number of bins per feature, not counting the missing bin.
+	Bins int
+	Seed uint64
+	// Threads is the number of goroutines; 0 uses GOMAXPROCS. It never changes the model.
+	Threads int
+	// PermutationRows caps the out-of-bag rows per tree used for permutation
+	// importance; negative turns permutation importance off.
+	PermutationRows int
+
+	// Progress, when set, is called after each finished tree with the number done and the
+	// total. Calls come from one goroutine at a time.
+	Progress func(done, total int)
+}
+
+// DefaultParams returns the defaults for a method.
+func DefaultParams(m Method) Params {
+	p := Params{
+		Method:          m,
+		Trees:           DefaultTrees,
+		MinLeaf:         DefaultMinLeaf,
+		RowFraction:     DefaultRowFraction,
+		WithReplacement: true,
+		Bins:            DefaultBins,
+		Seed:            DefaultSeed,
+		PermutationRows: DefaultPermutationRows,
+	}
+	if m == MethodTree {
+		p.Trees = 1
+	}
+	return p
+}
+
+// Validate reports the first control out of its range. It does not need the data; the
+// checks that do (features per split against the feature count) run in Train.
+func (p Params) Validate() error {
+	switch p.Method {
+	case MethodTree, MethodBagging, MethodForest:
+	default:
+		return fmt.Errorf("forest: method %q: want %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest)
+	}
+	switch p.Task {
+	case "", Classification, Regression:
+	default:
+		return fmt.Errorf("forest: task %q: want %q or %q", p.Task, Classification, Regression)
+	}
+	switch p.Impurity {
+	case "", Gini, Entropy:
+	default:
+		return fmt.Errorf("forest: impurity %q: want %q or %q", p.Impurity, Gini, Entropy)
+	}
+	if p.Trees < 1 {
+		return fmt.Errorf("forest: trees %d: want at least 1", p.Trees)
+	}
+	if p.Method == MethodTree && p.Trees != 1 {
+		return fmt.Errorf("forest: trees %d: method %q grows exactly 1", p.Trees, MethodTree)
+	}
+	if p.MaxDepth < 0 {
+		return fmt.Errorf("forest: max_depth %d: want 0 (unlimited) or more", p.MaxDepth)
+	}
+	if !(p.MinLeaf > 0) || math.IsInf(p.MinLeaf, 0) {
+		return fmt.Errorf("forest: min_leaf %g: want a finite number above 0", p.MinLeaf)
+	}
+	if !(p.MinGain >= 0) || math.IsInf(p.MinGain, 0) {
+		return fmt.Errorf("forest: min_gain %g: want a finite number ≥ 0", p.MinGain)
+	}
+	if !(p.FeaturesPerSplit >= 0) || math.IsInf(p.FeaturesPerSplit, 0) ||
+		(p.FeaturesPerSplit > 1 && p.FeaturesPerSplit != math.Trunc(p.FeaturesPerSplit)) {
+		return fmt.Errorf("forest: features_per_split %g: want a whole count ≥ 1 or a fraction in (0, 1)", p.FeaturesPerSplit)
+	}
+	if !(p.RowFraction > 0 && p.RowFraction <= 1) {
+		return fmt.Errorf("forest: row_fraction %g: want a number in (0, 1]", p.RowFraction)
+	}
+	if p.Bins < 2 || p.Bins > MaxBins {
+		return fmt.Errorf("forest: bins %d: want 2 to %d", p.Bins, MaxBins)
+	}
+	if p.Threads < 0 {
+		return fmt.Errorf("forest: threads %d: want 0 (all cores) or more", p.Threads)
+	}
+	return nil
+}
+
+// featuresPerSplit resolves FeaturesPerSplit against p features.
+func (p Params) featuresPerSplit(task Task, features int) (int, error) {
+	if p.Method != MethodForest {
+		if p.FeaturesPerSplit != 0 && p.FeaturesPerSplit != float64(features) {
+			// Only the forest samples features; say so rather than ignore the control.
+			return 0, fmt.Errorf("forest: features_per_split %g: method %q considers every feature", p.FeaturesPerSplit, p.Method)
+		}
+		return features, nil
+	}
+	var k int
+	switch f := p.FeaturesPerSplit; {
+	case f == 0 && task == Classification:
+		k = int(math.Floor(math.Sqrt(float64(features))))
+	case f == 0:
+		k = features / 3
+	case f < 1:
+		k = int(math.Floor(f * float64(features)))
+	default:
+		k = int(f)
+		if k > features {
+			return 0, fmt.Errorf("forest: features_per_split %d: the data has %d features", k, features)
+		}
+	}
+	return max(1, min(k, features)), nil
+}

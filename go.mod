@@ -1,0 +1,3 @@
+module github.com/copse-dev/copse
+
+go 1.26
