@@ -39,9 +39,6 @@ func (m *Model) Width() int {
 	return 1
 }
 
-// finish checks the invariants Predict relies on; Train and Decode call it.
-func (m *Model) finish() {}
-
 // PredictRow writes the prediction for one row into dst, which must hold Width numbers,
 // and returns it: class probabilities averaged over trees, or the mean value. A row holds
 // one number per feature in model order: categorical features as level codes, NaN (or a

@@ -81,7 +81,6 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 		}
 		return nil, err
 	}
-	m.finish()
 	if p.Method != MethodTree {
 		oob, err := outOfBag(m, d, fr.inbag, threads, &stop)
 		if err != nil {
