@@ -14,13 +14,18 @@ var errStopped = errors.New("forest: training stopped")
 
 // trainSet is the binned, read-only view of a data set that growers share.
 type trainSet struct {
-	rows    int
-	cols    []binnedColumn
-	bins    []Binning
-	task    Task
-	classes int
-	ycls    []int32   // classification target
-	yreg    []float64 // regression target
+	rows int
+	// The bins of every cell, row-major (a row's bins share a cache line, so one node
+	// pass reads each row once for all drawn features); one byte per cell when every
+	// feature has at most 256 bins, else two (mat16).
+	mat8     []uint8
+	mat16    []uint16
+	features int
+	bins     []Binning
+	task     Task
+	classes  int
+	ycls     []int32   // classification target
+	yreg     []float64 // regression target
 	// stat is the histogram width per bin: class weights, or (W, Σwy).
 	stat int
 	// width of a node's totals: class weights, or (W, Σwy, Σwy²).
@@ -71,10 +76,16 @@ type grower struct {
 
 	rows    []int32   // the tree's rows; each node owns a contiguous range
 	wts     []float64 // their weights, kept in step with rows
+	lab     []int32   // their classes (classification), in step with rows
+	yv      []float64 // their values (regression), in step with rows
 	tmpRows []int32
 	tmpW    []float64
+	tmpLab  []int32
+	tmpY    []float64
 
-	hist         []float64 // one feature's histogram, all zero between uses
+	hist         []float64 // one histogram per drawn feature, stride apart; zero between uses
+	stride       int
+	lo, hi       []int     // per drawn feature: lowest and highest bin seen at the node
 	cum, l, r    []float64 // stat-wide scratch
 	zeros        []float64 // stat-wide, always zero: the missing bin of nodes without missing values
 	cur          []float64 // totals of the node being split
@@ -93,20 +104,29 @@ func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
 		maxBins = max(maxBins, set.bins[i].NumBins())
 	}
 	S, T := set.stat, set.totalWidth
-	return &grower{
+	g := &grower{
 		set: set, cfg: cfg, cancel: cancel,
 		tmpRows: make([]int32, set.rows),
 		tmpW:    make([]float64, set.rows),
-		hist:    make([]float64, maxBins*S),
+		stride:  maxBins * S,
+		hist:    make([]float64, cfg.mtry*maxBins*S),
+		lo:      make([]int, cfg.mtry),
+		hi:      make([]int, cfg.mtry),
 		cum:     make([]float64, S),
 		zeros:   make([]float64, S),
 		l:       make([]float64, T),
 		r:       make([]float64, T),
 		cur:     make([]float64, T),
-		order:   make([]int, len(set.cols)),
+		order:   make([]int, set.features),
 		inLeft:  make([]bool, maxBins),
 		here:    make([]bool, maxBins),
 	}
+	if set.task == Regression {
+		g.yv, g.tmpY = make([]float64, set.rows), make([]float64, set.rows)
+	} else {
+		g.lab, g.tmpLab = make([]int32, set.rows), make([]int32, set.rows)
+	}
+	return g
 }
 
 // grow fits one tree to rows with weights wts (both are reordered in place).
@@ -114,6 +134,15 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 	set := g.set
 	T := set.totalWidth
 	g.rows, g.wts, g.rng = rows, wts, rng
+	if set.task == Regression {
+		for i, r := range rows {
+			g.yv[i] = set.yreg[r]
+		}
+	} else {
+		for i, r := range rows {
+			g.lab[i] = set.ycls[r]
+		}
+	}
 	for i := range g.order {
 		g.order[i] = i
 	}
@@ -213,20 +242,18 @@ func (g *grower) splittable(e pending, w float64) bool {
 // nodeTotals sums the statistics of rows[start:end] into dst.
 func (g *grower) nodeTotals(start, end int, dst []float64) {
 	clear(dst)
-	rows, wts := g.rows[start:end], g.wts[start:end]
+	wts := g.wts[start:end]
 	if g.set.task == Regression {
-		y := g.set.yreg
-		for i, r := range rows {
-			w, v := wts[i], y[r]
+		for i, v := range g.yv[start:end] {
+			w := wts[i]
 			dst[0] += w
 			dst[1] += w * v
 			dst[2] += w * v * v
 		}
 		return
 	}
-	y := g.set.ycls
-	for i, r := range rows {
-		dst[y[r]] += wts[i]
+	for i, c := range g.lab[start:end] {
+		dst[c] += wts[i]
 	}
 }
 
@@ -241,78 +268,68 @@ func (g *grower) setValue(t *Tree, node int, w float64) {
 	}
 }
 
-// findSplit leaves the best split of node e in g.best. A forest draws features one at a
-// time; once it has looked at mtry of them it stops at the first valid split, so a node
-// whose drawn features are all constant keeps drawing (as Breiman's reference code does).
+// findSplit leaves the best split of node e in g.best. A forest draws mtry features and
+// builds their histograms in one pass over the node's rows; if none of them can split
+// the node (all constant there), it keeps drawing one feature at a time, as Breiman's
+// reference code does.
 func (g *grower) findSplit(e pending) {
 	g.best.feature, g.best.gain = -1, math.Inf(-1)
 	p := len(g.order)
-	for k := 0; k < p; k++ {
-		if k >= g.cfg.mtry && g.best.valid() {
-			break
+	for k := 0; k < p && !g.best.valid(); {
+		n := 1
+		if k == 0 {
+			n = g.cfg.mtry
 		}
-		f := k
 		if g.cfg.mtry < p {
-			j := k + g.rng.IntN(p-k)
-			g.order[k], g.order[j] = g.order[j], g.order[k]
-			f = g.order[k]
+			for j := k; j < k+n; j++ {
+				r := j + g.rng.IntN(p-j)
+				g.order[j], g.order[r] = g.order[r], g.order[j]
+			}
 		}
-		g.evaluate(f, e)
+		g.evaluate(g.order[k:k+n], e)
+		k += n
 	}
 }
 
-// evaluate builds feature f's histogram over node e and scans it.
-func (g *grower) evaluate(f int, e pending) {
+// trackRows: below this many rows a node's histograms are scanned only over the bins its
+// rows fall in; above it, tracking costs more than scanning every bin.
+const trackRows = 1024
+
+// evaluate builds the histograms of feats over node e and scans each.
+func (g *grower) evaluate(feats []int, e pending) {
 	set := g.set
 	S := set.stat
-	col := &set.cols[f]
-	rows, wts := g.rows[e.start:e.end], g.wts[e.start:e.end]
-	var lo, hi int
-	if set.task == Regression {
-		if col.u8 != nil {
-			lo, hi = histRegression(g.hist, col.u8, rows, wts, set.yreg)
+	start, end := int(e.start), int(e.end)
+	track := end-start < trackRows
+	for j, f := range feats {
+		if track {
+			g.lo[j], g.hi[j] = math.MaxInt, 0
 		} else {
-			lo, hi = histRegression(g.hist, col.u16, rows, wts, set.yreg)
-		}
-	} else {
-		if col.u8 != nil {
-			lo, hi = histClasses(g.hist, col.u8, rows, wts, set.ycls, S)
-		} else {
-			lo, hi = histClasses(g.hist, col.u16, rows, wts, set.ycls, S)
+			g.lo[j], g.hi[j] = 0, set.bins[f].NumBins()-1
 		}
 	}
-	h := g.hist[:(hi+1)*S]
-	if set.bins[f].Kind == Categorical {
-		g.scanCategorical(f, h, lo, hi)
-	} else {
-		g.scanNumeric(f, h, lo, hi)
+	lo, hi := g.lo[:len(feats)], g.hi[:len(feats)]
+	rows, wts := g.rows[start:end], g.wts[start:end]
+	switch {
+	case set.task == Regression && set.mat8 != nil:
+		histRegression(g.hist, g.stride, set.mat8, set.features, feats, rows, wts, g.yv[start:end], lo, hi, track)
+	case set.task == Regression:
+		histRegression(g.hist, g.stride, set.mat16, set.features, feats, rows, wts, g.yv[start:end], lo, hi, track)
+	case set.mat8 != nil:
+		histClasses(g.hist, g.stride, set.mat8, set.features, feats, rows, wts, g.lab[start:end], S, lo, hi, track)
+	default:
+		histClasses(g.hist, g.stride, set.mat16, set.features, feats, rows, wts, g.lab[start:end], S, lo, hi, track)
 	}
-	clear(g.hist[lo*S : (hi+1)*S])
-}
-
-// histClasses adds each row's weight to its bin and class; it returns the lowest and
-// highest bin seen.
-func histClasses[B uint8 | uint16](h []float64, col []B, rows []int32, wts []float64, y []int32, classes int) (lo, hi int) {
-	lo, hi = math.MaxInt, 0
-	for i, r := range rows {
-		b := int(col[r])
-		h[b*classes+int(y[r])] += wts[i]
-		lo, hi = min(lo, b), max(hi, b)
+	for j, f := range feats {
+		base := j * g.stride
+		h := g.hist[base : base+(hi[j]+1)*S]
+		if set.bins[f].Kind == Categorical {
+			g.scanCategorical(f, h, lo[j], hi[j])
+		} else {
+			g.scanNumeric(f, h, lo[j], hi[j])
+		}
+		clear(g.hist[base+lo[j]*S : base+(hi[j]+1)*S])
 	}
-	return lo, hi
-}
-
-// histRegression adds each row's (w, wy) to its bin.
-func histRegression[B uint8 | uint16](h []float64, col []B, rows []int32, wts []float64, y []float64) (lo, hi int) {
-	lo, hi = math.MaxInt, 0
-	for i, r := range rows {
-		b := int(col[r])
-		w := wts[i]
-		h[2*b] += w
-		h[2*b+1] += w * y[r]
-		lo, hi = min(lo, b), max(hi, b)
-	}
-	return lo, hi
 }
 
 // consider scores the candidate left = cum (+ missing when missingLeft) against the rest.
@@ -516,53 +533,22 @@ func (g *grower) scanCategorical(f int, h []float64, lo, hi int) {
 }
 
 // partition moves the rows of node e that go left to the front of its range, keeping
-// row order on each side (so later passes read the columns in increasing address
-// order), and returns how many went left.
+// row order on each side (so later passes read the matrix in increasing address order),
+// and returns how many went left.
 func (g *grower) partition(e pending, s *splitInfo) int {
-	col := &g.set.cols[s.feature]
-	rows, wts := g.rows[e.start:e.end], g.wts[e.start:e.end]
+	sp := splitRule{feature: s.feature, bin: s.bin, missingLeft: s.missingLeft}
 	if s.categorical {
-		left := g.inLeft
-		left[0] = s.missingLeft
+		sp.left = g.inLeft[:g.set.bins[s.feature].NumBins()]
+		sp.left[0] = s.missingLeft
 		for _, b := range s.leftBins {
-			left[b] = true
+			sp.left[b] = true
 		}
-		var n int
-		if col.u8 != nil {
-			n = partitionBy(col.u8, rows, wts, g.tmpRows, g.tmpW, func(b int) bool { return left[b] })
-		} else {
-			n = partitionBy(col.u16, rows, wts, g.tmpRows, g.tmpW, func(b int) bool { return left[b] })
-		}
-		clear(left)
-		return n
+		defer clear(sp.left)
 	}
-	t, ml := s.bin, s.missingLeft
-	goLeft := func(b int) bool {
-		if b == 0 {
-			return ml
-		}
-		return b <= t
+	if g.set.mat8 != nil {
+		return partitionRows(g, g.set.mat8, e, sp)
 	}
-	if col.u8 != nil {
-		return partitionBy(col.u8, rows, wts, g.tmpRows, g.tmpW, goLeft)
-	}
-	return partitionBy(col.u16, rows, wts, g.tmpRows, g.tmpW, goLeft)
-}
-
-func partitionBy[B uint8 | uint16](col []B, rows []int32, wts []float64, tmpRows []int32, tmpW []float64, goLeft func(int) bool) int {
-	nl, nr := 0, 0
-	for i, r := range rows {
-		if goLeft(int(col[r])) {
-			rows[nl], wts[nl] = r, wts[i]
-			nl++
-		} else {
-			tmpRows[nr], tmpW[nr] = r, wts[i]
-			nr++
-		}
-	}
-	copy(rows[nl:], tmpRows[:nr])
-	copy(wts[nl:], tmpW[:nr])
-	return nl
+	return partitionRows(g, g.set.mat16, e, sp)
 }
 
 // levelSet turns a categorical split over bins into a bit set over level codes: levels in

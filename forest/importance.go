@@ -91,7 +91,8 @@ func permutationImportance(m *Model, d *Dataset, inbag [][]uint64, p Params, thr
 		for j, i := range oob {
 			rowOf(d, i, rows[j*F:(j+1)*F])
 		}
-		base := treeLoss(m, t, d, oob, rows, F)
+		leaves := make([]int32, n)
+		base := treeLoss(m, t, d, oob, rows, F, leaves)
 		used := make([]bool, F)
 		for _, nd := range t.Nodes {
 			if nd.Left >= 0 {
@@ -110,7 +111,7 @@ func permutationImportance(m *Model, d *Dataset, inbag [][]uint64, p Params, thr
 				k := rng.IntN(j + 1)
 				rows[j*F+f], rows[k*F+f] = rows[k*F+f], rows[j*F+f]
 			}
-			delta[b*F+f] = treeLoss(m, t, d, oob, rows, F) - base
+			delta[b*F+f] = treeLoss(m, t, d, oob, rows, F, leaves) - base
 			for j := range n {
 				rows[j*F+f] = saved[j]
 			}
@@ -137,10 +138,12 @@ func permutationImportance(m *Model, d *Dataset, inbag [][]uint64, p Params, thr
 }
 
 // treeLoss is one tree's weighted loss on rows: error rate, or mean squared error.
-func treeLoss(m *Model, t *Tree, d *Dataset, idx []int, rows []float64, F int) float64 {
+// leaves is scratch of len(idx).
+func treeLoss(m *Model, t *Tree, d *Dataset, idx []int, rows []float64, F int, leaves []int32) float64 {
+	t.LeafBatch(rows, F, leaves)
 	var loss, sw float64
 	for j, i := range idx {
-		v := t.NodeValue(t.Leaf(rows[j*F : (j+1)*F]))
+		v := t.NodeValue(int(leaves[j]))
 		w := d.weight(i)
 		if m.Task == Classification {
 			if Class(v) != int(d.target.codes[i]) {

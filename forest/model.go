@@ -60,8 +60,9 @@ func (m *Model) PredictRow(row, dst []float64) []float64 {
 }
 
 // predictBlockRows is how many rows Predict carries through one tree at a time: enough
-// to keep a tree's upper nodes in cache across rows, few enough that the block's inputs
-// (rows × features numbers) stay in the core's L2 cache.
+// that a tree's nodes are reused across many rows while it is in cache, few enough that
+// the block's inputs (rows × features numbers) stay in the core's L2 cache. 512 to 2048
+// measured alike on a 20-feature forest; 2048 was best.
 const predictBlockRows = 2048
 
 // Predict scores rows given column by column (cols[f][i] is feature f of row i, coded as

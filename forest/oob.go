@@ -54,13 +54,23 @@ func outOfBag(m *Model, d *Dataset, inbag [][]uint64, threads int, stop *atomic.
 		for i := lo; i < hi; i++ {
 			rowOf(d, i, rows[(i-lo)*p:(i-lo+1)*p])
 		}
+		// The tree's out-of-bag rows of this block, gathered so LeafBatch can walk them
+		// side by side.
+		picked := make([]int, 0, hi-lo)
+		block := make([]float64, 0, len(rows))
+		leaves := make([]int32, hi-lo)
 		for b, t := range m.Trees {
 			bag := inbag[b]
+			picked, block = picked[:0], block[:0]
 			for i := lo; i < hi; i++ {
-				if inBag(bag, i) || d.weight(i) == 0 {
-					continue
+				if !inBag(bag, i) && d.weight(i) > 0 {
+					picked = append(picked, i)
+					block = append(block, rows[(i-lo)*p:(i-lo+1)*p]...)
 				}
-				v := t.NodeValue(t.Leaf(rows[(i-lo)*p : (i-lo+1)*p]))
+			}
+			t.LeafBatch(block, p, leaves[:len(picked)])
+			for j, i := range picked {
+				v := t.NodeValue(int(leaves[j]))
 				acc := o.Value[i*W : (i+1)*W]
 				for k := range acc {
 					acc[k] += v[k]

@@ -105,14 +105,37 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 
 // binData bins every feature (in parallel) and packs the target.
 func binData(d *Dataset, task Task, p Params, threads int) *trainSet {
-	set := &trainSet{rows: d.rows, task: task, cols: make([]binnedColumn, len(d.features)), bins: make([]Binning, len(d.features))}
+	F := len(d.features)
+	set := &trainSet{rows: d.rows, task: task, features: F, bins: make([]Binning, F)}
+	cols := make([]binnedColumn, F)
 	sample := sampleRows(d, p.Seed)
-	parallelFor(len(d.features), threads, func(i int) {
+	parallelFor(F, threads, func(i int) {
 		c := &d.features[i]
 		if c.kind == Categorical {
-			set.bins[i], set.cols[i] = binCategorical(d, c.codes, len(c.levels), p.Bins)
+			set.bins[i], cols[i] = binCategorical(d, c.codes, len(c.levels), p.Bins)
 		} else {
-			set.bins[i], set.cols[i] = binNumeric(d, c.num, sample, p.Bins)
+			set.bins[i], cols[i] = binNumeric(d, c.num, sample, p.Bins)
+		}
+	})
+	wide := false
+	for _, c := range cols {
+		wide = wide || c.u16 != nil
+	}
+	if wide {
+		set.mat16 = make([]uint16, d.rows*F)
+	} else {
+		set.mat8 = make([]uint8, d.rows*F)
+	}
+	const block = 1 << 14
+	parallelFor((d.rows+block-1)/block, threads, func(k int) {
+		for i := k * block; i < min(d.rows, (k+1)*block); i++ {
+			for f := range cols {
+				if wide {
+					set.mat16[i*F+f] = uint16(cols[f].at(int32(i)))
+				} else {
+					set.mat8[i*F+f] = cols[f].u8[i]
+				}
+			}
 		}
 	})
 	if task == Classification {

@@ -86,7 +86,19 @@ func (t *Tree) LeafBatch(rows []float64, p int, leaves []int32) {
 					continue
 				}
 				moved = true
-				idx[l] = nd.Left + t.step(nd, rows[(i+l)*p+int(nd.Feature)])
+				x := rows[(i+l)*p+int(nd.Feature)]
+				next := nd.Left
+				if nd.LevelSet < 0 {
+					if x > nd.Threshold {
+						next++
+					}
+					if x != x && !nd.DefaultLeft {
+						next++
+					}
+				} else if !t.levelGoesLeft(nd, x) {
+					next++
+				}
+				idx[l] = next
 			}
 			if !moved {
 				break
