@@ -202,6 +202,7 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 		g.push(pending{node: left + 1, start: mid, end: e.end, depth: d}, g.r)
 		g.push(pending{node: left, start: e.start, end: mid, depth: d}, g.l)
 	}
+	t.trim()
 	return t, nil
 }
 
@@ -578,6 +579,15 @@ func (g *grower) levelSet(s *splitInfo) []uint64 {
 	clear(g.here)
 	clear(g.inLeft)
 	return bits
+}
+
+// trim copies the tree's arrays to their exact size: growing by append leaves up to
+// half of each array unused, and a forest keeps its trees for as long as it lives.
+func (t *Tree) trim() {
+	t.Nodes = slices.Clone(t.Nodes)
+	t.Gain = slices.Clone(t.Gain)
+	t.Cover = slices.Clone(t.Cover)
+	t.Value = slices.Clone(t.Value)
 }
 
 // addNode appends a leaf with room for its value and returns its index.
