@@ -113,7 +113,7 @@ func main() {
 		"library": "copse", "model": *method, "task": *task, "train_file": flag.Arg(0),
 		"n_train": train.rows, "n_test": test.rows, "threads": *threads,
 		"load_s": loadS, "train_s": trainS, "predict_s": predS,
-		"extra": map[string]any{"nodes": nodes, "heap_sys_mb": ms.HeapSys >> 20, "oob": m.OOB.Metrics,
+		"extra": map[string]any{"nodes": nodes, "heap_sys_mb": ms.HeapSys >> 20, "oob": oobMetrics(m),
 			"model_mb": modelBytes >> 20, "binned_mb": binnedBytes >> 20},
 	}
 	var pred []float64
@@ -251,4 +251,11 @@ func readCSV(path string, like *table) (*table, error) {
 func isNum(s string) bool {
 	_, err := strconv.ParseFloat(s, 64)
 	return err == nil
+}
+
+func oobMetrics(m *forest.Model) []forest.Metric {
+	if m.OOB == nil {
+		return nil
+	}
+	return m.OOB.Metrics
 }
