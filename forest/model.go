@@ -107,7 +107,7 @@ func (m *Model) Predict(cols [][]float64, out []float64, threads int) error {
 						block[(i-lo)*p+f] = c[i]
 					}
 				}
-				m.predictBlock(block[:(hi-lo)*p], p, out[lo*W:hi*W], leaves)
+				m.PredictBlock(block[:(hi-lo)*p], p, out[lo*W:hi*W], leaves)
 			}
 		}()
 	}
@@ -115,8 +115,12 @@ func (m *Model) Predict(cols [][]float64, out []float64, threads int) error {
 	return nil
 }
 
-// predictBlock scores row-major rows, tree by tree, into out.
-func (m *Model) predictBlock(rows []float64, p int, out []float64, leaves []int32) {
+// PredictBlock scores row-major rows (p numbers each, coded as for PredictRow) into out,
+// Width numbers per row, walking the trees one at a time over all rows. leaves is
+// scratch of one entry per row. The sums run in the same order as PredictRow's, so the
+// results are bit-identical. It does not allocate; hosts that fill their own blocks
+// (a SQL executor per chunk) call it directly.
+func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int32) {
 	W := m.Width()
 	clear(out)
 	n := len(rows) / p

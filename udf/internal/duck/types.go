@@ -74,7 +74,8 @@ type TypeInfo struct {
 	Width, Scale uint8        // DECIMAL only
 	Fields       []Field      // STRUCT only, in declaration order
 	Elem         *TypeInfo    // LIST only
-	internal     mapping.Type // DECIMAL storage type
+	Levels       []string     // ENUM only: the dictionary, indexed by code
+	internal     mapping.Type // DECIMAL and ENUM storage type
 }
 
 // Field is one child of a STRUCT.
@@ -90,6 +91,12 @@ func typeInfoOf(lt mapping.LogicalType) TypeInfo {
 	case mapping.TypeDecimal:
 		t.Width, t.Scale = mapping.DecimalWidth(lt), mapping.DecimalScale(lt)
 		t.internal = mapping.DecimalInternalType(lt)
+	case mapping.TypeEnum:
+		t.internal = mapping.EnumInternalType(lt)
+		t.Levels = make([]string, mapping.EnumDictionarySize(lt))
+		for i := range t.Levels {
+			t.Levels[i] = mapping.EnumDictionaryValue(lt, mapping.IdxT(i))
+		}
 	case mapping.TypeStruct:
 		n := int(mapping.StructTypeChildCount(lt))
 		t.Fields = make([]Field, n)

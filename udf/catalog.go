@@ -1,0 +1,350 @@
+package udf
+
+import (
+	"context"
+	"database/sql"
+	"errors"
+	"fmt"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/copse-dev/copse/forest"
+)
+
+// The catalog: one row per model version, the engine's encoding in a BLOB beside the
+// facts copse_models lists. It lives in the database being used, in its own schema.
+const (
+	catalogSchema = "copse"
+	catalogTable  = catalogSchema + ".models"
+)
+
+// ErrNoModel is wrapped by every "model not found" error.
+var ErrNoModel = errors.New("model not found")
+
+// Entry is what the catalog knows of one model version besides the model itself.
+type Entry struct {
+	Name      string
+	Version   int
+	Method    string
+	Task      string
+	Target    string
+	Rows      int64
+	Features  int
+	Trees     int
+	OOBMetric string  // "" when the method has no out-of-bag estimate
+	OOBValue  float64 // NaN when OOBMetric is ""
+	CreatedAt time.Time
+	SizeBytes int64
+	Source    string
+}
+
+func (h *Host) createCatalog(ctx context.Context) error {
+	_, err := h.db.ExecContext(ctx, `
+CREATE SCHEMA IF NOT EXISTS `+catalogSchema+`;
+CREATE TABLE IF NOT EXISTS `+catalogTable+` (
+	name       VARCHAR NOT NULL,
+	version    INTEGER NOT NULL,
+	method     VARCHAR NOT NULL,
+	task       VARCHAR NOT NULL,
+	target     VARCHAR NOT NULL,
+	rows       BIGINT NOT NULL,
+	features   INTEGER NOT NULL,
+	trees      INTEGER NOT NULL,
+	oob_metric VARCHAR,
+	oob_value  DOUBLE,
+	created_at TIMESTAMP NOT NULL,
+	size_bytes BIGINT NOT NULL,
+	source     VARCHAR NOT NULL,
+	row_keys   VARCHAR[],
+	row_actual VARCHAR[],
+	model      BLOB NOT NULL,
+	PRIMARY KEY (name, version)
+)`)
+	if err != nil {
+		return fmt.Errorf("udf: create catalog %s: %w", catalogTable, err)
+	}
+	return nil
+}
+
+// modelRef is a parsed model reference: "name" (its latest version) or "name@3".
+type modelRef struct {
+	name    string
+	version int // 0: latest
+}
+
+func parseRef(s string) (modelRef, error) {
+	i := strings.LastIndex(s, "@")
+	if i < 0 {
+		if s == "" {
+			return modelRef{}, errors.New("model name is empty")
+		}
+		return modelRef{name: s}, nil
+	}
+	name, v := s[:i], s[i+1:]
+	n, err := strconv.Atoi(v)
+	if name == "" || err != nil || n < 1 {
+		return modelRef{}, fmt.Errorf("model %q: want 'name' or 'name@version' with a version ≥ 1", s)
+	}
+	return modelRef{name: name, version: n}, nil
+}
+
+func (r modelRef) String() string {
+	if r.version == 0 {
+		return r.name
+	}
+	return fmt.Sprintf("%s@%d", r.name, r.version)
+}
+
+// validModelName rejects names that could not be referenced back: '@' separates the
+// version. Quotes and SQL in names are fine; every query binds them as parameters.
+func validModelName(name string) error {
+	if name == "" {
+		return errors.New("model name is empty")
+	}
+	if strings.Contains(name, "@") {
+		return fmt.Errorf("model name %q holds '@', which separates a version", name)
+	}
+	return nil
+}
+
+// saveModel writes a new version of name in one transaction on a pooled connection and
+// returns its entry. keys (the training rows' key values, nil for none) and actuals
+// (their target values as text, nil for none) back copse_oob.
+func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, source string, keys, actuals []string) (Entry, error) {
+	blob, err := m.MarshalBinary()
+	if err != nil {
+		return Entry{}, fmt.Errorf("encode model %q: %w", name, err)
+	}
+	e := Entry{Name: name, Method: string(m.Method), Task: string(m.Task), Target: m.Target,
+		Rows: int64(m.Rows), Features: len(m.Features), Trees: len(m.Trees),
+		CreatedAt: time.Now().UTC().Truncate(time.Microsecond), SizeBytes: int64(len(blob)), Source: source}
+	var oobMetric, oobValue any
+	if m.OOB != nil && len(m.OOB.Metrics) > 0 {
+		e.OOBMetric, e.OOBValue = m.OOB.Metrics[0].Name, m.OOB.Metrics[0].Value
+		oobMetric, oobValue = e.OOBMetric, e.OOBValue
+	}
+	var rowKeys, rowActual any
+	if keys != nil {
+		rowKeys = keys
+	}
+	if actuals != nil {
+		rowActual = actuals
+	}
+	h.saveMu.Lock()
+	defer h.saveMu.Unlock()
+	tx, err := h.db.BeginTx(ctx, nil)
+	if err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
+	defer tx.Rollback()
+	if err := tx.QueryRowContext(ctx, `SELECT coalesce(max(version), 0) + 1 FROM `+catalogTable+` WHERE name = ?`, name).Scan(&e.Version); err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
+	_, err = tx.ExecContext(ctx, `INSERT INTO `+catalogTable+` VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+		e.Name, e.Version, e.Method, e.Task, e.Target, e.Rows, e.Features, e.Trees, oobMetric, oobValue,
+		e.CreatedAt, e.SizeBytes, e.Source, rowKeys, rowActual, blob)
+	if err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
+	if err := tx.Commit(); err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
+	return e, nil
+}
+
+const entryColumns = `name, version, method, task, target, rows, features, trees, oob_metric, oob_value, created_at, size_bytes, source`
+
+func scanEntry(sc interface{ Scan(...any) error }, extra ...any) (Entry, error) {
+	var e Entry
+	var metric sql.NullString
+	var value sql.NullFloat64
+	dst := append([]any{&e.Name, &e.Version, &e.Method, &e.Task, &e.Target, &e.Rows, &e.Features, &e.Trees,
+		&metric, &value, &e.CreatedAt, &e.SizeBytes, &e.Source}, extra...)
+	if err := sc.Scan(dst...); err != nil {
+		return Entry{}, err
+	}
+	e.OOBMetric = metric.String
+	e.OOBValue = value.Float64
+	if !value.Valid {
+		e.OOBValue = nan
+	}
+	return e, nil
+}
+
+// resolve finds the catalog entry a reference names.
+func (h *Host) resolve(ctx context.Context, ref string) (Entry, error) {
+	r, err := parseRef(ref)
+	if err != nil {
+		return Entry{}, err
+	}
+	q := `SELECT ` + entryColumns + ` FROM ` + catalogTable + ` WHERE name = ?`
+	args := []any{r.name}
+	if r.version > 0 {
+		q += ` AND version = ?`
+		args = append(args, r.version)
+	}
+	q += ` ORDER BY version DESC LIMIT 1`
+	e, err := scanEntry(h.db.QueryRowContext(ctx, q, args...))
+	if errors.Is(err, sql.ErrNoRows) {
+		return Entry{}, fmt.Errorf("%w: %q", ErrNoModel, r.String())
+	}
+	if err != nil {
+		return Entry{}, fmt.Errorf("look up model %q: %w", r.String(), err)
+	}
+	return e, nil
+}
+
+// loadModel returns the decoded model a reference names, from the cache when it holds
+// that name and version. A new version is a new cache key; copse_drop evicts.
+func (h *Host) loadModel(ctx context.Context, ref string) (*forest.Model, Entry, error) {
+	e, err := h.resolve(ctx, ref)
+	if err != nil {
+		return nil, Entry{}, err
+	}
+	m, err := h.cache.get(e.Name, e.Version, func() (*forest.Model, error) {
+		var blob []byte
+		err := h.db.QueryRowContext(ctx, `SELECT model FROM `+catalogTable+` WHERE name = ? AND version = ?`, e.Name, e.Version).Scan(&blob)
+		if err != nil {
+			return nil, fmt.Errorf("read model %s@%d: %w", e.Name, e.Version, err)
+		}
+		m, err := forest.Decode(blob)
+		if err != nil {
+			return nil, fmt.Errorf("model %s@%d: %w", e.Name, e.Version, err)
+		}
+		return m, nil
+	})
+	if err != nil {
+		return nil, Entry{}, err
+	}
+	return m, e, nil
+}
+
+// rowKeys returns the training rows' keys stored with a model version (nil: none).
+func (h *Host) rowKeys(ctx context.Context, e Entry) ([]string, error) {
+	return h.rowTexts(ctx, e, "row_keys")
+}
+
+// rowActuals returns the training rows' target values, as text (nil: none stored).
+func (h *Host) rowActuals(ctx context.Context, e Entry) ([]string, error) {
+	return h.rowTexts(ctx, e, "row_actual")
+}
+
+// rowTexts reads one of the catalog's per-row text lists.
+func (h *Host) rowTexts(ctx context.Context, e Entry, column string) ([]string, error) {
+	var raw any
+	err := h.db.QueryRowContext(ctx, `SELECT `+column+` FROM `+catalogTable+` WHERE name = ? AND version = ?`, e.Name, e.Version).Scan(&raw)
+	if err != nil {
+		return nil, fmt.Errorf("read %s of %s@%d: %w", column, e.Name, e.Version, err)
+	}
+	if raw == nil {
+		return nil, nil
+	}
+	list, ok := raw.([]any)
+	if !ok {
+		return nil, fmt.Errorf("read %s of %s@%d: unexpected %T", column, e.Name, e.Version, raw)
+	}
+	out := make([]string, len(list))
+	for i, k := range list {
+		if s, ok := k.(string); ok {
+			out[i] = s
+		}
+	}
+	return out, nil
+}
+
+// dropModel deletes what a reference names — every version for a bare name — and
+// returns how many versions went.
+func (h *Host) dropModel(ctx context.Context, ref string) (int, error) {
+	r, err := parseRef(ref)
+	if err != nil {
+		return 0, err
+	}
+	q := `DELETE FROM ` + catalogTable + ` WHERE name = ?`
+	args := []any{r.name}
+	if r.version > 0 {
+		q += ` AND version = ?`
+		args = append(args, r.version)
+	}
+	res, err := h.db.ExecContext(ctx, q, args...)
+	if err != nil {
+		return 0, fmt.Errorf("drop model %q: %w", ref, err)
+	}
+	n, _ := res.RowsAffected()
+	if n == 0 {
+		return 0, fmt.Errorf("%w: %q", ErrNoModel, ref)
+	}
+	h.cache.evict(r.name, r.version)
+	return int(n), nil
+}
+
+// listModels returns every model version, by name then version.
+func (h *Host) listModels(ctx context.Context) ([]Entry, error) {
+	rows, err := h.db.QueryContext(ctx, `SELECT `+entryColumns+` FROM `+catalogTable+` ORDER BY name, version`)
+	if err != nil {
+		return nil, fmt.Errorf("list models: %w", err)
+	}
+	defer rows.Close()
+	var out []Entry
+	for rows.Next() {
+		e, err := scanEntry(rows)
+		if err != nil {
+			return nil, fmt.Errorf("list models: %w", err)
+		}
+		out = append(out, e)
+	}
+	return out, rows.Err()
+}
+
+// modelCache keeps decoded models by name and version; concurrent loads of one key decode
+// once.
+type modelCache struct {
+	mu      sync.Mutex
+	entries map[cacheKey]*cacheEntry
+}
+
+type cacheKey struct {
+	name    string
+	version int
+}
+
+type cacheEntry struct {
+	once  sync.Once
+	model *forest.Model
+	err   error
+}
+
+func (c *modelCache) get(name string, version int, load func() (*forest.Model, error)) (*forest.Model, error) {
+	c.mu.Lock()
+	if c.entries == nil {
+		c.entries = map[cacheKey]*cacheEntry{}
+	}
+	k := cacheKey{name, version}
+	e := c.entries[k]
+	if e == nil {
+		e = &cacheEntry{}
+		c.entries[k] = e
+	}
+	c.mu.Unlock()
+	e.once.Do(func() { e.model, e.err = load() })
+	if e.err != nil {
+		c.mu.Lock()
+		if c.entries[k] == e {
+			delete(c.entries, k) // let a later call try again
+		}
+		c.mu.Unlock()
+	}
+	return e.model, e.err
+}
+
+// evict drops a version (0: every version) of name.
+func (c *modelCache) evict(name string, version int) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	for k := range c.entries {
+		if k.name == name && (version == 0 || k.version == version) {
+			delete(c.entries, k)
+		}
+	}
+}

@@ -1,0 +1,248 @@
+package udf
+
+import (
+	"context"
+	"database/sql"
+	"fmt"
+	"time"
+
+	"github.com/copse-dev/copse/forest"
+	"github.com/copse-dev/copse/udf/internal/duck"
+)
+
+// registerTraining registers copse_train, copse_drop, copse_models and copse_jobs. All
+// four are table functions whose bind has no side effects (DuckDB binds for EXPLAIN,
+// DESCRIBE and prepare, sometimes twice); the work happens in the first fill.
+func (h *Host) registerTraining(conn *sql.Conn) error {
+	for _, f := range []duck.TableFunc{
+		{Name: "copse_train", Args: []duck.Type{duck.Varchar, duck.Varchar}, Named: trainOptions, Bind: h.bindTrain},
+		{Name: "copse_drop", Args: []duck.Type{duck.Varchar}, Bind: h.bindDrop},
+		{Name: "copse_models", Bind: h.bindModels},
+		{Name: "copse_jobs", Bind: h.bindJobs},
+	} {
+		if err := duck.RegisterTable(conn, f); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// trainColumns is copse_train's one result row.
+var trainColumns = []duck.Column{
+	{Name: "model", Type: duck.Varchar}, {Name: "version", Type: duck.BigInt},
+	{Name: "method", Type: duck.Varchar}, {Name: "task", Type: duck.Varchar},
+	{Name: "target", Type: duck.Varchar}, {Name: "rows", Type: duck.BigInt},
+	{Name: "rows_skipped", Type: duck.BigInt}, {Name: "features", Type: duck.BigInt},
+	{Name: "trees", Type: duck.BigInt}, {Name: "oob_metric", Type: duck.Varchar},
+	{Name: "oob_value", Type: duck.Double}, {Name: "seconds", Type: duck.Double},
+}
+
+// bindTrain checks the options and, by describing the source (which binds it without
+// running it), the columns: an EXPLAIN or a prepare reports bad input without training.
+func (h *Host) bindTrain(call duck.TableCall) (*duck.TableBinding, error) {
+	c, err := parseTrainCall(call.Args, call.Named)
+	if err != nil {
+		return nil, err
+	}
+	cols, err := h.describe(h.contextOf(call.ConnID), c)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := c.resolve(cols); err != nil {
+		return nil, err
+	}
+	connID := call.ConnID
+	return &duck.TableBinding{
+		Columns: trainColumns,
+		Init: func() (duck.FillFunc, error) {
+			var r trainResult
+			return onceRows(func() (int, error) {
+				var err error
+				r, err = h.train(h.contextOf(connID), c)
+				return 1, err
+			}, func(out *duck.Chunk, k, _ int) {
+				e := r.entry
+				out.SetString(0, k, e.Name)
+				out.SetInt64(1, k, int64(e.Version))
+				out.SetString(2, k, e.Method)
+				out.SetString(3, k, e.Task)
+				out.SetString(4, k, e.Target)
+				out.SetInt64(5, k, e.Rows)
+				out.SetInt64(6, k, int64(r.skipped))
+				out.SetInt64(7, k, int64(e.Features))
+				out.SetInt64(8, k, int64(e.Trees))
+				setOOB(out, 9, k, e)
+				out.SetFloat64(11, k, r.seconds)
+			}), nil
+		},
+	}, nil
+}
+
+// trainResult is what one training reports.
+type trainResult struct {
+	entry   Entry
+	skipped int
+	seconds float64
+}
+
+// train runs one copse_train call: read, train, save. Nothing reaches the catalog unless
+// every step succeeds; saveModel writes in one transaction.
+func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
+	start := time.Now()
+	job := h.jobs.start(c.name, string(c.params.Method), c.params.Trees)
+	defer h.jobs.finish(job)
+
+	data, err := h.readTraining(ctx, c)
+	if err != nil {
+		return trainResult{}, err
+	}
+	h.jobs.update(job, func(j *Job) { j.Stage = "training" })
+	p := c.params
+	p.Progress = func(done, total int) {
+		h.jobs.update(job, func(j *Job) { j.TreesDone, j.Trees = done, total })
+	}
+	m, err := forest.Train(ctx, data.set, p)
+	if err != nil {
+		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
+	}
+	h.jobs.update(job, func(j *Job) { j.Stage = "saving" })
+	e, err := h.saveModel(ctx, c.name, m, c.source, data.keys, data.actuals)
+	if err != nil {
+		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
+	}
+	return trainResult{entry: e, skipped: data.skipped, seconds: time.Since(start).Seconds()}, nil
+}
+
+// setOOB writes an entry's out-of-bag metric and value into columns col and col+1, NULL
+// when the method has none.
+func setOOB(out *duck.Chunk, col, k int, e Entry) {
+	if e.OOBMetric == "" {
+		out.SetNull(col, k)
+		out.SetNull(col+1, k)
+		return
+	}
+	out.SetString(col, k, e.OOBMetric)
+	out.SetFloat64(col+1, k, e.OOBValue)
+}
+
+// onceRows is a fill that computes its rows on the first call (load returns how many)
+// and then writes them chunk by chunk with put(out, chunk row, result row).
+func onceRows(load func() (int, error), put func(out *duck.Chunk, k, i int)) duck.FillFunc {
+	total, next := -1, 0
+	return func(out *duck.Chunk) (int, error) {
+		if total < 0 {
+			n, err := load()
+			if err != nil {
+				return 0, err
+			}
+			total = n
+		}
+		k := 0
+		for ; k < out.Capacity() && next < total; k, next = k+1, next+1 {
+			put(out, k, next)
+		}
+		return k, nil
+	}
+}
+
+// bindDrop checks the reference; the drop happens in the fill.
+func (h *Host) bindDrop(call duck.TableCall) (*duck.TableBinding, error) {
+	ref, ok := call.Args[0].(string)
+	if !ok {
+		return nil, fmt.Errorf("copse_drop: the model is NULL")
+	}
+	if _, err := parseRef(ref); err != nil {
+		return nil, fmt.Errorf("copse_drop: %w", err)
+	}
+	connID := call.ConnID
+	return &duck.TableBinding{
+		Columns: []duck.Column{{Name: "model", Type: duck.Varchar}, {Name: "versions_dropped", Type: duck.BigInt}},
+		Init: func() (duck.FillFunc, error) {
+			var n int
+			return onceRows(func() (int, error) {
+				var err error
+				n, err = h.dropModel(h.contextOf(connID), ref)
+				if err != nil {
+					return 0, fmt.Errorf("copse_drop: %w", err)
+				}
+				return 1, nil
+			}, func(out *duck.Chunk, k, _ int) {
+				out.SetString(0, k, ref)
+				out.SetInt64(1, k, int64(n))
+			}), nil
+		},
+	}, nil
+}
+
+// modelColumns are copse_models' columns, in Entry's order.
+var modelColumns = []duck.Column{
+	{Name: "name", Type: duck.Varchar}, {Name: "version", Type: duck.BigInt},
+	{Name: "method", Type: duck.Varchar}, {Name: "task", Type: duck.Varchar},
+	{Name: "target", Type: duck.Varchar}, {Name: "rows", Type: duck.BigInt},
+	{Name: "features", Type: duck.BigInt}, {Name: "trees", Type: duck.BigInt},
+	{Name: "oob_metric", Type: duck.Varchar}, {Name: "oob_value", Type: duck.Double},
+	{Name: "created_at", Type: duck.Timestamp}, {Name: "size_bytes", Type: duck.BigInt},
+	{Name: "source", Type: duck.Varchar},
+}
+
+// bindModels lists the catalog, read when the query runs.
+func (h *Host) bindModels(call duck.TableCall) (*duck.TableBinding, error) {
+	connID := call.ConnID
+	return &duck.TableBinding{
+		Columns: modelColumns,
+		Init: func() (duck.FillFunc, error) {
+			var list []Entry
+			return onceRows(func() (int, error) {
+				var err error
+				list, err = h.listModels(h.contextOf(connID))
+				if err != nil {
+					return 0, fmt.Errorf("copse_models: %w", err)
+				}
+				return len(list), nil
+			}, func(out *duck.Chunk, k, i int) {
+				e := list[i]
+				out.SetString(0, k, e.Name)
+				out.SetInt64(1, k, int64(e.Version))
+				out.SetString(2, k, e.Method)
+				out.SetString(3, k, e.Task)
+				out.SetString(4, k, e.Target)
+				out.SetInt64(5, k, e.Rows)
+				out.SetInt64(6, k, int64(e.Features))
+				out.SetInt64(7, k, int64(e.Trees))
+				setOOB(out, 8, k, e)
+				out.SetTime(10, k, e.CreatedAt)
+				out.SetInt64(11, k, e.SizeBytes)
+				out.SetString(12, k, e.Source)
+			}), nil
+		},
+	}, nil
+}
+
+// bindJobs lists the trainings running when the query runs, on any connection.
+func (h *Host) bindJobs(duck.TableCall) (*duck.TableBinding, error) {
+	return &duck.TableBinding{
+		Columns: []duck.Column{
+			{Name: "id", Type: duck.BigInt}, {Name: "model", Type: duck.Varchar},
+			{Name: "method", Type: duck.Varchar}, {Name: "stage", Type: duck.Varchar},
+			{Name: "trees_done", Type: duck.BigInt}, {Name: "trees", Type: duck.BigInt},
+			{Name: "seconds", Type: duck.Double},
+		},
+		Init: func() (duck.FillFunc, error) {
+			var jobs []Job
+			var now time.Time
+			return onceRows(func() (int, error) {
+				jobs, now = h.Jobs(), time.Now()
+				return len(jobs), nil
+			}, func(out *duck.Chunk, k, i int) {
+				j := jobs[i]
+				out.SetInt64(0, k, j.ID)
+				out.SetString(1, k, j.Model)
+				out.SetString(2, k, j.Method)
+				out.SetString(3, k, j.Stage)
+				out.SetInt64(4, k, int64(j.TreesDone))
+				out.SetInt64(5, k, int64(j.Trees))
+				out.SetFloat64(6, k, now.Sub(j.Started).Seconds())
+			}), nil
+		},
+	}, nil
+}
