@@ -13,7 +13,7 @@ type Job struct {
 	ID        int64
 	Model     string
 	Method    string
-	Stage     string // "reading", "training", "saving"
+	Stage     string // "reading", "training", "out-of-bag", "saving"
 	TreesDone int
 	Trees     int
 	Started   time.Time

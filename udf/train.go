@@ -99,7 +99,12 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 	h.jobs.update(job, func(j *Job) { j.Stage = "training" })
 	p := c.params
 	p.Progress = func(done, total int) {
-		h.jobs.update(job, func(j *Job) { j.TreesDone, j.Trees = done, total })
+		h.jobs.update(job, func(j *Job) {
+			j.TreesDone, j.Trees = done, total
+			if done == total && p.Method != forest.MethodTree {
+				j.Stage = "out-of-bag" // the out-of-bag pass and permutation importance follow
+			}
+		})
 	}
 	m, err := forest.Train(ctx, data.set, p)
 	if err != nil {

@@ -1,0 +1,138 @@
+-- The script `copse demo` runs (go run ./cmd/copse demo). It expects the demo tables
+-- (invoices, new_invoices, new_invoice_outcomes, feature_dictionary) that the demo
+-- generates; lines starting with "--:" are printed as the demo's narration.
+
+--: copse demo — which invoices will be paid more than 30 days late, and how late?
+--: ===============================================================================
+--:
+--: The data are invented. A fictional wholesale distributor has 20,000 paid invoices
+--: (table invoices) and 5,000 open ones to score (table new_invoices). How late each
+--: invoice was paid follows a known rule, so we can check what the models find:
+--:
+--:   z = 3.0·(past_late_share − 0.25) + 2.5·(credit_use − 0.60) + 0.25·(open_invoices − 5)
+--:     + 0.03·(terms_days − 30) + 1.2·exp(−tenure_months / 18)
+--:     + segment (construction +0.9, public +0.6, hospitality +0.45, retail 0, healthcare −0.45)
+--:     + 0.15·ln(amount / 2000) + 0.2 if region = 'islands' + 0.1 if channel = 'web'
+--:   days_late = max(0, round(14 + 12·z + 9·noise)),  noise ~ N(0, 1)
+--:   late_30   = days_late > 30
+--:
+--: A missing past_late_share counts as 0.35 and a missing credit_use as 0.60.
+--: invoice_date, noise_x and noise_tag play no part: a sound model ranks them below
+--: every true driver.
+--:
+--: 1. The paid invoices
+SELECT count(*)                                   AS invoices,
+       count(*) FILTER (late_30)                  AS over_30_days_late,
+       round(avg(late_30::INTEGER), 3)            AS late_share,
+       round(avg(days_late), 1)                   AS mean_days_late,
+       count(*) FILTER (past_late_share IS NULL)  AS no_payment_history,
+       count(*) FILTER (credit_use IS NULL)       AS no_credit_limit
+FROM invoices;
+
+--: 2. Train a random forest on them. copse_train reads the table, grows the trees and
+--:    keeps the model in the database under the name 'late_risk'. The key column and
+--:    the other outcome (days_late) are not features; min_leaf stops splitting at
+--:    leaves of 10 invoices.
+SELECT model, version, method, task, target, rows, rows_skipped, features, trees,
+       oob_metric, round(oob_value, 4) AS oob_value
+FROM copse_train('late_risk', 'invoices',
+                 target := 'late_30', key := 'invoice_id', exclude := ['days_late'],
+                 trees := 100, min_leaf := 10, seed := 42);
+
+--: 3. How good is it? Each invoice is scored by the trees that never saw it (out of bag),
+--:    an honest estimate without a separate test set. copse_oob gives one row per
+--:    training row, keyed by invoice_id, to join back to the invoices.
+SELECT i.late_30 AS actual, o.predicted, count(*) AS invoices
+FROM copse_oob('late_risk') o
+JOIN invoices i ON i.invoice_id = CAST(o.key AS BIGINT)
+GROUP BY i.late_30, o.predicted
+ORDER BY i.late_30, o.predicted;
+
+SELECT round(avg((i.late_30::VARCHAR = o.predicted)::INTEGER), 4)   AS accuracy,
+       round(avg(power(o.probability - i.late_30::INTEGER, 2)), 4) AS brier_score
+FROM copse_oob('late_risk') o
+JOIN invoices i ON i.invoice_id = CAST(o.key AS BIGINT);
+
+--: The same out-of-bag results per customer segment: a first check that the model
+--: errs no more for one group than for another.
+SELECT i.segment,
+       count(*)                                                    AS invoices,
+       round(avg((i.late_30::VARCHAR <> o.predicted)::INTEGER), 3) AS error_rate,
+       round(avg(o.probability), 3)                                AS mean_p_late_30,
+       round(avg(i.late_30::INTEGER), 3)                           AS actual_late_share
+FROM copse_oob('late_risk') o
+JOIN invoices i ON i.invoice_id = CAST(o.key AS BIGINT)
+GROUP BY i.segment
+ORDER BY i.segment;
+
+--: The error as trees are added: it falls quickly, then levels off.
+SELECT trees, metric, round(value, 4) AS value
+FROM copse_curve('late_risk')
+WHERE trees IN (1, 5, 10, 25, 50, 100)
+ORDER BY trees;
+
+--: 4. What drives it? Both importance measures, joined to the feature dictionary.
+--:    Impurity decrease sums to 1 and leans towards columns with many distinct values;
+--:    permutation importance is the loss of accuracy when a column is shuffled out of
+--:    bag, so columns that play no part sit near 0.
+SELECT imp.rank,
+       imp.feature,
+       round(imp.importance, 3)  AS impurity,
+       round(perm.importance, 4) AS permutation,
+       round(perm.std, 4)        AS permutation_std,
+       d.owner,
+       d.description
+FROM copse_importance('late_risk') imp
+JOIN copse_importance('late_risk', method := 'permutation') perm ON perm.feature = imp.feature
+JOIN feature_dictionary d ON d.feature = imp.feature
+ORDER BY imp.rank;
+
+--: 5. How many days late? A regression forest on the same invoices.
+SELECT model, version, method, task, target, rows, features, trees,
+       oob_metric, round(oob_value, 3) AS oob_value
+FROM copse_train('days_late', 'SELECT * EXCLUDE (late_30) FROM invoices',
+                 target := 'days_late', key := 'invoice_id', trees := 50, min_leaf := 10, seed := 42);
+
+SELECT rank, feature, round(importance, 3) AS impurity
+FROM copse_importance('days_late')
+ORDER BY rank
+LIMIT 6;
+
+--: 6. Score the open invoices: the ten most likely to be paid over 30 days late.
+SELECT invoice_id, segment, region, amount, terms_days, tenure_months,
+       round(copse_score('late_risk', n), 3)  AS p_late_30,
+       copse_label('late_risk', n)            AS label,
+       round(copse_score('days_late', n), 1)  AS expected_days_late
+FROM new_invoices n
+ORDER BY p_late_30 DESC, invoice_id
+LIMIT 10;
+
+--: The same scores per segment, beside what happened later (new_invoice_outcomes).
+SELECT n.segment,
+       count(*)                                     AS invoices,
+       round(avg(copse_score('late_risk', n)), 3)   AS mean_p_late_30,
+       round(avg(o.late_30::INTEGER), 3)            AS actual_late_share,
+       round(avg(copse_score('days_late', n)), 1)   AS mean_expected_days,
+       round(avg(o.days_late), 1)                   AS actual_mean_days
+FROM new_invoices n
+JOIN new_invoice_outcomes o ON o.invoice_id = n.invoice_id
+GROUP BY n.segment
+ORDER BY n.segment;
+
+--: copse_predict returns every column of a source with the prediction beside it.
+SELECT invoice_id, segment, prediction, round(probability, 3) AS probability
+FROM copse_predict('late_risk', 'SELECT invoice_id, * EXCLUDE (invoice_id) FROM new_invoices WHERE invoice_id <= 100005')
+ORDER BY invoice_id;
+
+--: 7. The models kept in this database.
+SELECT name, version, method, task, target, rows, features, trees,
+       oob_metric, round(oob_value, 4) AS oob_value
+FROM copse_models()
+ORDER BY name, version;
+
+--: Use with care
+--: -------------
+--: A model is decision support, not a decision.
+--: - Check it for bias across groups and for stability over time before relying on it.
+--: - Adverse decisions about a person or a customer may require reasons and human review.
+--: - Local law and licensed professional practice prevail over anything a model says.
