@@ -10,7 +10,7 @@ import (
 // the training source holds it (testdata/iris.csv: Fisher 1936, see testdata/README.md;
 // friedman1_train.csv for regression).
 func TestOOBActualFromTraining(t *testing.T) {
-	h := trHost(t)
+	h := openHost(t)
 	db := h.DB()
 	trExec(t, db, `CREATE TABLE iris AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/iris.csv')`)
 	trExec(t, db, `CREATE TABLE fr AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/friedman1_train.csv')`)

@@ -62,12 +62,7 @@ func (h *Host) bindTrain(call duck.TableCall) (*duck.TableBinding, error) {
 				return 1, err
 			}, func(out *duck.Chunk, k, _ int) {
 				e := r.entry
-				out.SetString(0, k, e.Name)
-				out.SetInt64(1, k, int64(e.Version))
-				out.SetString(2, k, e.Method)
-				out.SetString(3, k, e.Task)
-				out.SetString(4, k, e.Target)
-				out.SetInt64(5, k, e.Rows)
+				setEntryHead(out, k, e)
 				out.SetInt64(6, k, int64(r.skipped))
 				out.SetInt64(7, k, int64(e.Features))
 				out.SetInt64(8, k, int64(e.Trees))
@@ -116,6 +111,17 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}
 	return trainResult{entry: e, skipped: data.skipped, seconds: time.Since(start).Seconds()}, nil
+}
+
+// setEntryHead writes the columns copse_train and copse_models share, in their order:
+// model/name, version, method, task, target, rows.
+func setEntryHead(out *duck.Chunk, k int, e Entry) {
+	out.SetString(0, k, e.Name)
+	out.SetInt64(1, k, int64(e.Version))
+	out.SetString(2, k, e.Method)
+	out.SetString(3, k, e.Task)
+	out.SetString(4, k, e.Target)
+	out.SetInt64(5, k, e.Rows)
 }
 
 // setOOB writes an entry's out-of-bag metric and value into columns col and col+1, NULL
@@ -206,12 +212,7 @@ func (h *Host) bindModels(call duck.TableCall) (*duck.TableBinding, error) {
 				return len(list), nil
 			}, func(out *duck.Chunk, k, i int) {
 				e := list[i]
-				out.SetString(0, k, e.Name)
-				out.SetInt64(1, k, int64(e.Version))
-				out.SetString(2, k, e.Method)
-				out.SetString(3, k, e.Task)
-				out.SetString(4, k, e.Target)
-				out.SetInt64(5, k, e.Rows)
+				setEntryHead(out, k, e)
 				out.SetInt64(6, k, int64(e.Features))
 				out.SetInt64(7, k, int64(e.Trees))
 				setOOB(out, 8, k, e)

@@ -24,7 +24,7 @@ const benchWide = `CREATE TABLE wide AS SELECT
 FROM range(N_ROWS) r(i)`
 
 func benchHost(b *testing.B, rows int) *Host {
-	h := trHost(b)
+	h := openHost(b)
 	trExec(b, h.DB(), strings.Replace(benchWide, "N_ROWS", strconv.Itoa(rows), 1))
 	return h
 }

@@ -11,17 +11,6 @@ import (
 	"github.com/copse-dev/copse/forest"
 )
 
-// trHost opens a host on a fresh in-memory database.
-func trHost(t testing.TB) *Host {
-	t.Helper()
-	h, err := Open(context.Background(), "")
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { h.Close() })
-	return h
-}
-
 func trExec(t testing.TB, db *sql.DB, q string) {
 	t.Helper()
 	if _, err := db.Exec(q); err != nil {

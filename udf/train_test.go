@@ -120,7 +120,7 @@ func allRows(n int) []int {
 }
 
 func ptsHost(t testing.TB) (*Host, *sql.DB) {
-	h := trHost(t)
+	h := openHost(t)
 	trExec(t, h.DB(), ptsTable)
 	return h, h.DB()
 }
@@ -633,7 +633,7 @@ func TestTrainPositive(t *testing.T) {
 // columns keep the enum's levels in its order; VARCHAR levels are sorted. The model
 // equals the engine's on values computed here in Go.
 func TestTrainColumnTypes(t *testing.T) {
-	h := trHost(t)
+	h := openHost(t)
 	db := h.DB()
 	trExec(t, db, "CREATE TYPE mood AS ENUM ('sad', 'ok', 'happy', 'ecstatic')")
 	const n = 240
@@ -744,7 +744,7 @@ func trCSV(t testing.TB, file, target string) *forest.Dataset {
 // RandomForestClassifier with 200 trees, 5 of 30 features per split, bootstrap, mean
 // over random_state 1–5; see testdata/README.md).
 func TestTrainMatchesEngine(t *testing.T) {
-	h := trHost(t)
+	h := openHost(t)
 	db := h.DB()
 	t.Run("iris", func(t *testing.T) {
 		for _, method := range []forest.Method{forest.MethodTree, forest.MethodForest} {
@@ -802,7 +802,7 @@ func TestTrainMatchesEngine(t *testing.T) {
 // A training whose attached context is cancelled stops, reports it and saves nothing;
 // meanwhile copse_jobs, read on another connection, shows it training.
 func TestTrainCancel(t *testing.T) {
-	h := trHost(t)
+	h := openHost(t)
 	db := h.DB()
 	trExec(t, db, "CREATE TABLE big AS SELECT i, (i * 7919 % 1000)::DOUBLE AS x, (i * 104729 % 997)::DOUBLE AS z, (i * 7919 % 1000)::DOUBLE + (i % 13)::DOUBLE AS y FROM range(3000) r(i)")
 	trRows(t, db, "CALL copse_train('kept', 'big', target := 'y', trees := 2)")
