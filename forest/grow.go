@@ -51,7 +51,7 @@ type growConfig struct {
 	maxDepth int // 0: unlimited
 	minLeaf  float64
 	minGain  float64 // share of the root weight
-	mtry     int     // features drawn per split
+	drawn    int     // features drawn per split
 }
 
 // pending is a node waiting on the grower's stack; its rows are rows[start:end].
@@ -109,9 +109,9 @@ func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
 		tmpRows: make([]int32, set.rows),
 		tmpW:    make([]float64, set.rows),
 		stride:  maxBins * S,
-		hist:    make([]float64, cfg.mtry*maxBins*S),
-		lo:      make([]int, cfg.mtry),
-		hi:      make([]int, cfg.mtry),
+		hist:    make([]float64, cfg.drawn*maxBins*S),
+		lo:      make([]int, cfg.drawn),
+		hi:      make([]int, cfg.drawn),
 		cum:     make([]float64, S),
 		zeros:   make([]float64, S),
 		l:       make([]float64, T),
@@ -269,7 +269,7 @@ func (g *grower) setValue(t *Tree, node int, w float64) {
 	}
 }
 
-// findSplit leaves the best split of node e in g.best. A forest draws mtry features and
+// findSplit leaves the best split of node e in g.best. A forest draws cfg.drawn features and
 // builds their histograms in one pass over the node's rows; if none of them can split
 // the node (all constant there), it keeps drawing one feature at a time, as Breiman's
 // reference code does.
@@ -279,9 +279,9 @@ func (g *grower) findSplit(e pending) {
 	for k := 0; k < p && !g.best.valid(); {
 		n := 1
 		if k == 0 {
-			n = g.cfg.mtry
+			n = g.cfg.drawn
 		}
-		if g.cfg.mtry < p {
+		if g.cfg.drawn < p {
 			for j := k; j < k+n; j++ {
 				r := j + g.rng.IntN(p-j)
 				g.order[j], g.order[r] = g.order[r], g.order[j]

@@ -30,7 +30,7 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	if err := d.check(task); err != nil {
 		return nil, err
 	}
-	mtry, err := p.featuresPerSplit(task, len(d.features))
+	drawn, err := p.featuresPerSplit(task, len(d.features))
 	if err != nil {
 		return nil, err
 	}
@@ -72,7 +72,7 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	stored.Task = task
 	m.Params = stored
 
-	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, mtry: mtry}
+	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, drawn: drawn}
 	fr := &fitRun{d: d, set: set, p: p, cfg: cfg, stop: &stop}
 	m.Trees, fr.inbag, err = fr.growAll(threads)
 	if err != nil {
