@@ -18,6 +18,9 @@ import (
 const (
 	catalogSchema = "copse"
 	catalogTable  = catalogSchema + ".models"
+	// versionTable remembers each name's highest version ever saved, so that a version
+	// number is never reused after a drop: an old 'name@3' never names a new model.
+	versionTable = catalogSchema + ".model_versions"
 )
 
 // ErrNoModel is wrapped by every "model not found" error.
@@ -43,6 +46,10 @@ type Entry struct {
 func (h *Host) createCatalog(ctx context.Context) error {
 	_, err := h.db.ExecContext(ctx, `
 CREATE SCHEMA IF NOT EXISTS `+catalogSchema+`;
+CREATE TABLE IF NOT EXISTS `+versionTable+` (
+	name         VARCHAR PRIMARY KEY,
+	last_version INTEGER NOT NULL
+);
 CREATE TABLE IF NOT EXISTS `+catalogTable+` (
 	name       VARCHAR NOT NULL,
 	version    INTEGER NOT NULL,
@@ -110,9 +117,10 @@ func validModelName(name string) error {
 }
 
 // saveModel writes a new version of name in one transaction on a pooled connection and
-// returns its entry. keys (the training rows' key values, nil for none) and actuals
-// (their target values as text, nil for none) back copse_oob.
-func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, source string, keys, actuals []string) (Entry, error) {
+// returns its entry. keys (the training rows' key values, nil for none; keyNull marks
+// the NULL ones, nil when none is) and actuals (their target values as text, nil for
+// none) back copse_oob.
+func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, source string, keys []string, keyNull []bool, actuals []string) (Entry, error) {
 	blob, err := m.MarshalBinary()
 	if err != nil {
 		return Entry{}, fmt.Errorf("encode model %q: %w", name, err)
@@ -125,9 +133,12 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 		e.OOBMetric, e.OOBValue = m.OOB.Metrics[0].Name, m.OOB.Metrics[0].Value
 		oobMetric, oobValue = e.OOBMetric, e.OOBValue
 	}
-	var rowKeys, rowActual any
+	var rowKeys, rowKeyNull, rowActual any
 	if keys != nil {
 		rowKeys = keys
+	}
+	if keys != nil && keyNull != nil {
+		rowKeyNull = keyNull
 	}
 	if actuals != nil {
 		rowActual = actuals
@@ -139,12 +150,22 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
 	defer tx.Rollback()
-	if err := tx.QueryRowContext(ctx, `SELECT coalesce(max(version), 0) + 1 FROM `+catalogTable+` WHERE name = ?`, name).Scan(&e.Version); err != nil {
+	err = tx.QueryRowContext(ctx, `SELECT greatest(
+		coalesce((SELECT max(version) FROM `+catalogTable+` WHERE name = ?), 0),
+		coalesce((SELECT last_version FROM `+versionTable+` WHERE name = ?), 0)) + 1`, name, name).Scan(&e.Version)
+	if err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
-	_, err = tx.ExecContext(ctx, `INSERT INTO `+catalogTable+` VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+	if _, err := tx.ExecContext(ctx, `INSERT OR REPLACE INTO `+versionTable+` VALUES (?, ?)`, name, e.Version); err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
+	// The driver cannot bind a NULL inside a list: NULL keys travel as a mask.
+	_, err = tx.ExecContext(ctx, `INSERT INTO `+catalogTable+` VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?,
+		CASE WHEN ?::BOOLEAN[] IS NULL THEN ?::VARCHAR[]
+		     ELSE list_transform(?::VARCHAR[], (k, i) -> CASE WHEN (?::BOOLEAN[])[i] THEN NULL ELSE k END) END,
+		?, ?)`,
 		e.Name, e.Version, e.Method, e.Task, e.Target, e.Rows, e.Features, e.Trees, oobMetric, oobValue,
-		e.CreatedAt, e.SizeBytes, e.Source, rowKeys, rowActual, blob)
+		e.CreatedAt, e.SizeBytes, e.Source, rowKeyNull, rowKeys, rowKeys, rowKeyNull, rowActual, blob)
 	if err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
@@ -203,9 +224,10 @@ func (h *Host) loadModel(ctx context.Context, ref string) (*forest.Model, Entry,
 	if err != nil {
 		return nil, Entry{}, err
 	}
-	m, err := h.cache.get(e.Name, e.Version, func() (*forest.Model, error) {
+	m, err := h.cache.get(e.Name, e.Version, e.CreatedAt, func() (*forest.Model, error) {
 		var blob []byte
-		err := h.db.QueryRowContext(ctx, `SELECT model FROM `+catalogTable+` WHERE name = ? AND version = ?`, e.Name, e.Version).Scan(&blob)
+		err := h.db.QueryRowContext(ctx, `SELECT model FROM `+catalogTable+` WHERE name = ? AND version = ? AND created_at = ?`,
+			e.Name, e.Version, e.CreatedAt).Scan(&blob)
 		if err != nil {
 			return nil, fmt.Errorf("read model %s@%d: %w", e.Name, e.Version, err)
 		}
@@ -231,27 +253,39 @@ func (h *Host) rowActuals(ctx context.Context, e Entry) ([]string, error) {
 	return h.rowTexts(ctx, e, "row_actual")
 }
 
-// rowTexts reads one of the catalog's per-row text lists.
+// rowTexts reads one of the catalog's per-row text lists; NULL entries read as "".
 func (h *Host) rowTexts(ctx context.Context, e Entry, column string) ([]string, error) {
+	out, _, err := h.rowTextsNull(ctx, e, column)
+	return out, err
+}
+
+// rowTextsNull is rowTexts that also reports which entries are NULL (nil: none is).
+func (h *Host) rowTextsNull(ctx context.Context, e Entry, column string) ([]string, []bool, error) {
 	var raw any
 	err := h.db.QueryRowContext(ctx, `SELECT `+column+` FROM `+catalogTable+` WHERE name = ? AND version = ?`, e.Name, e.Version).Scan(&raw)
 	if err != nil {
-		return nil, fmt.Errorf("read %s of %s@%d: %w", column, e.Name, e.Version, err)
+		return nil, nil, fmt.Errorf("read %s of %s@%d: %w", column, e.Name, e.Version, err)
 	}
 	if raw == nil {
-		return nil, nil
+		return nil, nil, nil
 	}
 	list, ok := raw.([]any)
 	if !ok {
-		return nil, fmt.Errorf("read %s of %s@%d: unexpected %T", column, e.Name, e.Version, raw)
+		return nil, nil, fmt.Errorf("read %s of %s@%d: unexpected %T", column, e.Name, e.Version, raw)
 	}
 	out := make([]string, len(list))
+	var null []bool
 	for i, k := range list {
 		if s, ok := k.(string); ok {
 			out[i] = s
+		} else {
+			if null == nil {
+				null = make([]bool, len(list))
+			}
+			null[i] = true
 		}
 	}
-	return out, nil
+	return out, null, nil
 }
 
 // dropModel deletes what a reference names — every version for a bare name — and
@@ -304,9 +338,13 @@ type modelCache struct {
 	entries map[cacheKey]*cacheEntry
 }
 
+// cacheKey names one saved model. created tells apart two models saved under one name
+// and version: the catalog reuses a version number once its rows are gone (a copse_drop
+// of the latest version, or rows deleted by hand, which evicts nothing).
 type cacheKey struct {
 	name    string
 	version int
+	created int64 // created_at, microseconds since the epoch
 }
 
 type cacheEntry struct {
@@ -315,12 +353,12 @@ type cacheEntry struct {
 	err   error
 }
 
-func (c *modelCache) get(name string, version int, load func() (*forest.Model, error)) (*forest.Model, error) {
+func (c *modelCache) get(name string, version int, created time.Time, load func() (*forest.Model, error)) (*forest.Model, error) {
 	c.mu.Lock()
 	if c.entries == nil {
 		c.entries = map[cacheKey]*cacheEntry{}
 	}
-	k := cacheKey{name, version}
+	k := cacheKey{name, version, created.UnixMicro()}
 	e := c.entries[k]
 	if e == nil {
 		e = &cacheEntry{}

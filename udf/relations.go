@@ -9,6 +9,7 @@ import (
 	"math"
 	"slices"
 	"strconv"
+	"strings"
 
 	"github.com/copse-dev/copse/forest"
 	"github.com/copse-dev/copse/udf/internal/duck"
@@ -82,7 +83,7 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 	kind := forest.ImpurityImportance
 	if v, ok := call.Named["method"]; ok {
 		s, _ := v.(string)
-		kind = forest.ImportanceKind(s)
+		kind = forest.ImportanceKind(strings.ToLower(s)) // as copse_train's method and task
 	}
 	var imp, std []float64
 	switch kind {
@@ -175,9 +176,10 @@ func (h *Host) bindOOB(call duck.TableCall) (*duck.TableBinding, error) {
 		Columns: cols,
 		Init: func() (duck.FillFunc, error) {
 			var keys []string
+			var keyNull []bool
 			if keyed {
 				var err error
-				if keys, err = h.rowKeys(ctx, e); err != nil {
+				if keys, keyNull, err = h.rowTextsNull(ctx, e, "row_keys"); err != nil {
 					return nil, fmt.Errorf("%s: %w", fn, err)
 				}
 				if len(keys) != n {
@@ -193,7 +195,11 @@ func (h *Host) bindOOB(call duck.TableCall) (*duck.TableBinding, error) {
 			}
 			return rowsFill(n, func(out *duck.Chunk, j, i int) {
 				if keyed {
-					out.SetString(0, j, keys[i])
+					if keyNull != nil && keyNull[i] {
+						out.SetNull(0, j)
+					} else {
+						out.SetString(0, j, keys[i])
+					}
 				} else {
 					out.SetInt64(0, j, int64(i+1))
 				}

@@ -75,11 +75,14 @@ func (k outKind) funcName() string {
 // the scorer resolved at bind (constant model name) or a per-name cache filled by the
 // executors (a model name that is not constant, such as $1 or a column).
 type scoreSite struct {
-	h      *Host
-	fn     string
-	kind   outKind
-	row    duck.TypeInfo
-	ctx    context.Context
+	h    *Host
+	fn   string
+	kind outKind
+	row  duck.TypeInfo
+	// connID is the calling connection: a model loads under the context attached to
+	// it when the load happens (a prepared statement's bind context is long done by
+	// the time EXECUTE runs it).
+	connID uint64
 	static *scorer
 	// class: the 3-argument form. classConst is set when the class is a constant.
 	class      bool
@@ -108,7 +111,7 @@ func (h *Host) bindScore(call duck.ScalarCall, kind outKind) (duck.ScalarExec, e
 	if row.ID != mapping.TypeStruct {
 		return nil, fmt.Errorf("%s: %w: the row must be a STRUCT (a table alias such as t in copse_score('m', t), or struct_pack(...)), got %v", fn, ErrCall, row)
 	}
-	site := &scoreSite{h: h, fn: fn, kind: kind, row: row, ctx: h.contextOf(call.ConnID), class: len(call.Args) == 3}
+	site := &scoreSite{h: h, fn: fn, kind: kind, row: row, connID: call.ConnID, class: len(call.Args) == 3}
 	if site.class {
 		a := call.Args[2]
 		if a.Foldable {
@@ -135,7 +138,7 @@ func (h *Host) bindScore(call duck.ScalarCall, kind outKind) (duck.ScalarExec, e
 
 // newScorer loads a model and fits it to the site's row layout.
 func (site *scoreSite) newScorer(ref string) (*scorer, error) {
-	m, e, err := site.h.loadModel(site.ctx, ref)
+	m, e, err := site.h.loadModel(site.h.contextOf(site.connID), ref)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", site.fn, err)
 	}
@@ -267,6 +270,7 @@ const (
 	inText                       // VARCHAR field of a categorical feature: level lookup
 	inBoolLevel                  // BOOLEAN field of a categorical feature: levels 'true'/'false'
 	inEnum                       // ENUM field of a categorical feature: dictionary → level code
+	inNull                       // field of DuckDB's NULL type (a bare NULL in struct_pack): missing
 )
 
 // input feeds one model feature from one struct field.
@@ -339,6 +343,8 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 		f := row.Fields[idx]
 		in := input{field: idx, used: used[fi]}
 		switch {
+		case f.Type.ID == mapping.TypeSQLNull:
+			in.kind = inNull // every value NULL: missing, as the NULL policy says
 		case feat.Kind == forest.Numeric && f.Type.Numeric():
 			in.kind = inNumber
 		case feat.Kind == forest.Categorical && f.Type.ID == mapping.TypeVarchar:
@@ -444,6 +450,10 @@ func (s *scorer) run(site *scoreSite, in *duck.ScalarInput, out *duck.ScalarOutp
 		}
 		v := in.Field(1, inp.field)
 		switch inp.kind {
+		case inNull:
+			for j := range rows {
+				block[j*p+f] = math.NaN()
+			}
 		case inNumber, inBoolLevel:
 			col := sc.col[:n]
 			if err := v.Float64s(col); err != nil {
@@ -576,8 +586,9 @@ func (h *Host) bindPredictSQL(call duck.ScalarCall) (duck.ScalarExec, error) {
 	if len(call.Args) != 2 {
 		return nil, fmt.Errorf("%s: %w: expected 2 arguments, got %d", fn, ErrCall, len(call.Args))
 	}
-	ctx := h.contextOf(call.ConnID)
+	connID := call.ConnID
 	return func(in *duck.ScalarInput, out *duck.ScalarOutput) error {
+		ctx := h.contextOf(connID) // the running statement's, not the bind's
 		refs, srcs := in.Arg(0), in.Arg(1)
 		for i := range in.Len() {
 			ref, ok1 := refs.String(i)
@@ -607,8 +618,10 @@ func (h *Host) predictQuery(ctx context.Context, ref, source string) (string, er
 		return "", fmt.Errorf("%w: the source is empty: give a table or view name, a table function call or a SELECT", ErrCall)
 	}
 	from := src + " AS " + predictAlias
-	if isQuery(src) {
-		from = "(" + src + ") AS " + predictAlias
+	if isQuery(skipComments(src)) {
+		// As in copse_train: a final semicolon is dropped, and the query sits on lines
+		// of its own so that a trailing "--" comment cannot swallow the parenthesis.
+		from = "(\n" + strings.TrimRight(src, "; \t\r\n") + "\n) AS " + predictAlias
 	}
 	model := "'" + sqlEscape(fmt.Sprintf("%s@%d", e.Name, e.Version)) + "'"
 	row := predictAlias

@@ -173,7 +173,7 @@ func TestScoreErrors(t *testing.T) {
 		wantErr(t, h.db, c.q, c.parts...)
 	}
 	// The error chain keeps its sentinels inside the host.
-	site := &scoreSite{h: h, fn: "copse_score", ctx: context.Background(), row: doubleStruct("x1")}
+	site := &scoreSite{h: h, fn: "copse_score", row: doubleStruct("x1")}
 	if _, err := site.newScorer("reg"); !errors.Is(err, ErrRow) {
 		t.Fatalf("missing feature: %v does not wrap ErrRow", err)
 	}

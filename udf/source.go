@@ -14,6 +14,7 @@ import (
 	"github.com/duckdb/duckdb-go/v2/mapping"
 
 	"github.com/copse-dev/copse/forest"
+	"github.com/copse-dev/copse/internal/sqlsplit"
 	"github.com/copse-dev/copse/udf/internal/duck"
 )
 
@@ -28,6 +29,20 @@ import (
 // two). The query goes inside the parentheses on lines of its own, so a trailing "--"
 // comment cannot swallow the closing parenthesis.
 func sourceQuery(src string) (string, error) {
+	q, err := sourceQueryText(src)
+	if err != nil {
+		return "", err
+	}
+	// The driver runs every statement of a text it is given, the earlier ones for their
+	// effects, and describe runs at bind: a source such as "t(1); DROP TABLE x; SELECT
+	// (1)" must not turn an EXPLAIN, or a training that then fails, into a DROP.
+	if n := len(sqlsplit.Split(q)); n != 1 {
+		return "", fmt.Errorf("source %q: holds more than one statement; give one table, table function call or query", src)
+	}
+	return q, nil
+}
+
+func sourceQueryText(src string) (string, error) {
 	s := strings.TrimSpace(src)
 	if s == "" {
 		return "", errors.New("the source is empty: give a table or view name, a table function call or a query")
@@ -222,6 +237,9 @@ func (h *Host) describe(ctx context.Context, c *trainCall) ([]srcColumn, error) 
 	if err != nil {
 		return nil, c.sourceErr(err.Error())
 	}
+	if len(names) < 2 {
+		return nil, fmt.Errorf("copse_train %q: source %q: DESCRIBE returned %d columns, not a column list", c.name, c.source, len(names))
+	}
 	var cols []srcColumn
 	vals := make([]any, len(names))
 	ptrs := make([]any, len(names))
@@ -409,6 +427,7 @@ func (l *layout) readQuery(base string) string {
 type trainingData struct {
 	set     *forest.Dataset
 	keys    []string // nil without a key column
+	keyNull []bool   // which keys are NULL; nil when none is
 	actuals []string // the target of each row trained on, as text, for copse_oob
 	skipped int      // rows left out for a NULL target
 }
@@ -593,6 +612,11 @@ func (c *trainCall) build(l *layout, byCol []*duck.ResultColumn) (*trainingData,
 			}
 			if code := k.Codes[i]; code >= 0 {
 				out.keys[j] = k.Levels[code]
+			} else {
+				if out.keyNull == nil {
+					out.keyNull = make([]bool, rows)
+				}
+				out.keyNull[j] = true
 			}
 		}
 	}

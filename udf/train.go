@@ -106,7 +106,7 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}
 	h.jobs.update(job, func(j *Job) { j.Stage = "saving" })
-	e, err := h.saveModel(ctx, c.name, m, c.source, data.keys, data.actuals)
+	e, err := h.saveModel(ctx, c.name, m, c.source, data.keys, data.keyNull, data.actuals)
 	if err != nil {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}

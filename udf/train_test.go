@@ -361,7 +361,8 @@ func TestTrainSourceQuery(t *testing.T) {
 			t.Errorf("sourceQuery(%q) = %q, %v; want %q", tc.in, got, err, tc.want)
 		}
 	}
-	for _, bad := range []string{"", "  ", "my table", "t; DROP TABLE x", "1abc", `"unclosed`, `""`, "f(x) junk", "a.", "selec * from t"} {
+	for _, bad := range []string{"", "  ", "my table", "t; DROP TABLE x", "1abc", `"unclosed`, `""`, "f(x) junk", "a.", "selec * from t",
+		"range(3); DROP TABLE x; SELECT (1)", "SELECT 1) AS a; DROP TABLE x; SELECT * FROM (SELECT 1"} {
 		if got, err := sourceQuery(bad); err == nil {
 			t.Errorf("sourceQuery(%q) = %q, want an error", bad, got)
 		}
@@ -443,9 +444,18 @@ func TestTrainDrop(t *testing.T) {
 	if r := trRows(t, db, "SELECT name, version FROM copse_models()"); len(r) != 1 || r[0][0] != "other" {
 		t.Errorf("left: %v", r)
 	}
-	// A dropped name starts again at version 1.
-	if r := trRows(t, db, "CALL copse_train('m', 'pts', target := 'label', exclude := ['l'], trees := 2)"); r[0][1] != "1" {
-		t.Errorf("retrained after drop: version %s", r[0][1])
+	// Version numbers are never reused: after versions 1–3 are gone the next is 4, so an
+	// old reference 'm@1' cannot silently name a new model.
+	if r := trRows(t, db, "CALL copse_train('m', 'pts', target := 'label', exclude := ['l'], trees := 2)"); r[0][1] != "4" {
+		t.Errorf("retrained after drop: version %s, want 4", r[0][1])
+	}
+	if _, _, err := h.loadModel(context.Background(), "m@1"); !errors.Is(err, ErrNoModel) {
+		t.Errorf("m@1 after every version was dropped and m retrained: %v", err)
+	}
+	// Dropping the latest version does not hand its number out again either.
+	trRows(t, db, "CALL copse_drop('m@4')")
+	if r := trRows(t, db, "CALL copse_train('m', 'pts', target := 'label', exclude := ['l'], trees := 2)"); r[0][1] != "5" {
+		t.Errorf("retrained after dropping the latest: version %s, want 5", r[0][1])
 	}
 	// EXPLAIN drops nothing.
 	trRows(t, db, "EXPLAIN SELECT * FROM copse_drop('other')")

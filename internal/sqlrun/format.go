@@ -341,7 +341,10 @@ func jsonValue(v any, typ string) any {
 		}
 		return x
 	case float32:
-		return jsonValue(float64(x), typ)
+		if math.IsNaN(float64(x)) || math.IsInf(float64(x), 0) {
+			return formatFloat(float64(x), 32)
+		}
+		return json.Number(formatFloat(float64(x), 32)) // the float32's own shortest digits
 	case time.Time, []byte, duckdb.UUID, duckdb.Interval:
 		return text(x, typ, "")
 	case duckdb.Decimal:

@@ -163,7 +163,7 @@ var commandWords = map[string]bool{
 	"copy": true, "set": true, "reset": true, "attach": true, "detach": true, "use": true,
 	"begin": true, "commit": true, "rollback": true, "abort": true, "end": true, "install": true, "load": true,
 	"checkpoint": true, "force": true, "vacuum": true, "export": true, "import": true, "truncate": true,
-	"comment": true, "analyze": true,
+	"comment": true, "analyze": true, "prepare": true, "deallocate": true,
 }
 
 // statusOnly reports whether res is DuckDB's bookkeeping answer to a command (a lone

@@ -119,6 +119,8 @@ func TestStatusOnly(t *testing.T) {
 		{"SELECT count(*) AS \"Count\" FROM t", count(5), "", false},
 		{"WITH x AS (SELECT 1) SELECT * FROM x", &Result{Columns: []string{"1"}, Types: []string{"INTEGER"}}, "", false},
 		{"anything", &Result{}, "ok", true},
+		{"PREPARE p AS SELECT 1", &Result{Columns: []string{"Success"}, Types: []string{"BOOLEAN"}}, "ok", true},
+		{"DEALLOCATE p", &Result{Columns: []string{"Success"}, Types: []string{"BOOLEAN"}}, "ok", true},
 	}
 	for _, tt := range tests {
 		status, ok := statusOnly(tt.q, tt.res)

@@ -65,7 +65,7 @@ func Split(script string) []Statement {
 			line += strings.Count(s[i:i+n], "\n")
 			i += n
 		case c == '\'' || c == '"':
-			n := quoted(s[i:], c)
+			n := quotedAt(s, i)
 			if start == 0 {
 				start = line
 			}
@@ -117,7 +117,7 @@ func Complete(script string) bool {
 			}
 			i += n
 		case c == '\'' || c == '"':
-			n := quoted(s[i:], c)
+			n := quotedAt(s, i)
 			if n < 2 || s[i+n-1] != c {
 				return false
 			}
@@ -138,6 +138,39 @@ func Complete(script string) bool {
 		}
 	}
 	return last == ';'
+}
+
+// quotedAt returns the length of the quoted text starting at s[i]: an escape string
+// (E'…', where a backslash escapes the next character) or plain quoted text.
+func quotedAt(s string, i int) int {
+	if s[i] == '\'' && i > 0 && (s[i-1] == 'E' || s[i-1] == 'e') && (i == 1 || !identByte(s[i-2])) {
+		return escQuoted(s[i:])
+	}
+	return quoted(s[i:], s[i])
+}
+
+// identByte reports whether c can be part of a bare identifier (so "tablE'x'" is no
+// escape string).
+func identByte(c byte) bool {
+	return c == '_' || c == '$' || c >= '0' && c <= '9' || c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= 0x80
+}
+
+// escQuoted is quoted for an escape string: a backslash escapes the next byte, and a
+// doubled quote still stands for itself.
+func escQuoted(s string) int {
+	for i := 1; i < len(s); i++ {
+		switch {
+		case s[i] == '\\':
+			i++
+		case s[i] == '\'':
+			if i+1 < len(s) && s[i+1] == '\'' {
+				i++
+				continue
+			}
+			return i + 1
+		}
+	}
+	return len(s)
 }
 
 // quoted returns the length of the quoted text at the start of s (s[0] == q), with a

@@ -31,6 +31,8 @@ func TestSplit(t *testing.T) {
 		{"note inside statement is a comment", "select\n--: not a note\n1;", []Statement{{SQL: "select\n--: not a note\n1", Line: 1}}},
 		{"note after a comment", "-- plain\n--: note\nselect 1;", []Statement{{Notes: []string{"note"}, SQL: "-- plain\n\nselect 1", Line: 3}}},
 		{"unterminated string", "select 'abc; def", []Statement{{SQL: "select 'abc; def", Line: 1}}},
+		{"escape string", `select E'it\'s; fine'; select e'\\'; select type'x;y'`, []Statement{
+			{SQL: `select E'it\'s; fine'`, Line: 1}, {SQL: `select e'\\'`, Line: 1}, {SQL: `select type'x;y'`, Line: 1}}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -59,6 +61,8 @@ func TestComplete(t *testing.T) {
 		{"select $$ ;", false},
 		{"select $$ ; $$;", true},
 		{`select "x;`, false},
+		{`select E'\';`, false},
+		{`select E'\\';`, true},
 	}
 	for _, tt := range tests {
 		if got := Complete(tt.script); got != tt.want {

@@ -123,6 +123,12 @@ func scalarBind(info mapping.BindInfo) error {
 			}
 		}
 		mapping.DestroyExpression(&expr)
+		if i < len(spec.Args) && spec.Args[i] != Any {
+			// DuckDB casts the argument to the declared type before the executor
+			// sees it; the expression's own type may differ, or not be known yet
+			// (a parameter of a statement being prepared).
+			a.Type = TypeInfo{ID: spec.Args[i].id()}
+		}
 		call.Args[i] = a
 	}
 	exec, err := spec.Bind(call)

@@ -68,6 +68,23 @@ func (t Type) logical() mapping.LogicalType {
 	panic(fmt.Sprintf("duck: no logical type for %v", t))
 }
 
+// id is the DuckDB type id of a scalar Type (Any and nested types give TypeInvalid).
+func (t Type) id() mapping.Type {
+	switch t {
+	case Varchar:
+		return mapping.TypeVarchar
+	case BigInt:
+		return mapping.TypeBigInt
+	case Double:
+		return mapping.TypeDouble
+	case Boolean:
+		return mapping.TypeBoolean
+	case Timestamp:
+		return mapping.TypeTimestamp
+	}
+	return mapping.TypeInvalid
+}
+
 // TypeInfo describes a DuckDB type seen at bind time.
 type TypeInfo struct {
 	ID           mapping.Type
