@@ -1,6 +1,7 @@
 // Package forest is copse's tree-ensemble engine: it bins a columnar data set once, grows
-// trees by histogram split search, and combines them as a single tree, bagging or a random
-// forest, with out-of-bag results, importance and a binary model encoding.
+// trees by histogram split search, and combines them as a single tree, bagging, a random
+// forest or gradient boosting, with out-of-bag results, importance and a binary model
+// encoding.
 //
 // It is pure Go: it knows nothing of SQL, DuckDB or the command line. The host fills a
 // [Dataset] column by column, calls [Train], and scores with [Model.Predict] or
@@ -25,7 +26,13 @@
 //   - cover: the training weight that reached a node.
 //   - gain: a split's weighted impurity decrease, W·I(node) − W_L·I(left) − W_R·I(right).
 //   - out-of-bag (OOB): the rows a tree did not draw; scoring each row with only those
-//     trees estimates error on new data.
+//     trees estimates error on new data. Bagged methods only.
+//   - round: one boosting step, one tree fitted to the loss's gradient at the current
+//     raw scores; raw score: the initial score plus the trees' values, before the link
+//     (identity, or the logistic function for class probabilities).
+//   - gradient g, hessian h: the first and second derivative of a row's loss in its raw
+//     score; a boosted leaf's value is −Σg/(Σh + λ), shrunk by the learning rate.
+//   - holdout: rows kept out of boosting to choose the number of rounds.
 //
 // # What it does not do
 //

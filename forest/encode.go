@@ -1,12 +1,14 @@
 package forest
 
-// The binary model encoding, format version 1. It holds everything scoring and explaining
+// The binary model encoding, format version 2. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
+// Decode also reads version 1 (before boosting: no section 7, no boosting controls), so
+// models stored by earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 1
-//	6       sections  the six below, in tag order, each: tag byte, body length uvarint, body
+//	4       version   uint16, 2
+//	6       sections  the seven below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
 // Fixed-width numbers are little-endian; a float is its full 64-bit IEEE pattern, so NaN
@@ -23,7 +25,9 @@ package forest
 //	2    params      method string, task string, impurity string, trees varint,
 //	                 max_depth varint, min_leaf float, min_gain float,
 //	                 features_per_split float, row_fraction float, with_replacement byte
-//	                 (0 or 1), bins varint, seed uvarint, permutation_rows varint
+//	                 (0 or 1), bins varint, seed uvarint, permutation_rows varint,
+//	                 loss string, learning_rate float, leaf_penalty float,
+//	                 holdout_fraction float, patience varint
 //	3    features    count uvarint, then per feature: name string, kind byte (1 numeric,
 //	                 2 categorical), levels list of string, bin upper edges list of float,
 //	                 level bins list of uint16, bin counts list of float
@@ -42,8 +46,12 @@ package forest
 //	                 float, metrics list of (name string, value float), curve list of
 //	                 float, curve metric string, scored uvarint
 //	6    importance  impurity, permutation, permutation std: three lists of float
+//	7    boost       empty when the model is not boosted; else loss string, initial
+//	                 score list of float, rounds uvarint, best round uvarint, training
+//	                 loss list of float, holdout loss list of float
 //
-// A tree's width (the number of classes, or 1) and each binning's kind are implied, not
+// A tree's width (the number of classes, or 1 for boosted and regression trees) and each
+// binning's kind are implied, not
 // stored. Child links are stored as forward distances, so the bytes cannot express a link
 // to an earlier node, and with it a cycle.
 
@@ -58,7 +66,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 1
+	encodingVersion = 2
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -92,17 +100,19 @@ var (
 type section struct {
 	tag   byte
 	name  string
+	since uint16 // the first format version that has the section
 	write func(*encWriter, *Model)
 	read  func(*encReader, *Model)
 }
 
 var sections = [...]section{
-	{1, "model", (*encWriter).model, (*encReader).model},
-	{2, "params", (*encWriter).params, (*encReader).params},
-	{3, "features", (*encWriter).features, (*encReader).features},
-	{4, "trees", (*encWriter).trees, (*encReader).trees},
-	{5, "oob", (*encWriter).oob, (*encReader).oob},
-	{6, "importance", (*encWriter).importance, (*encReader).importance},
+	{1, "model", 1, (*encWriter).model, (*encReader).model},
+	{2, "params", 1, (*encWriter).params, (*encReader).params},
+	{3, "features", 1, (*encWriter).features, (*encReader).features},
+	{4, "trees", 1, (*encWriter).trees, (*encReader).trees},
+	{5, "oob", 1, (*encWriter).oob, (*encReader).oob},
+	{6, "importance", 1, (*encWriter).importance, (*encReader).importance},
+	{7, "boost", 2, (*encWriter).boost, (*encReader).boost},
 }
 
 // MarshalBinary encodes the model in the layout described at the top of this file. It
@@ -158,16 +168,20 @@ func decode(b []byte) (*Model, error) {
 	if string(b[:len(encodingMagic)]) != encodingMagic {
 		return nil, fmt.Errorf("not a model: starts with %q, want %q", b[:len(encodingMagic)], encodingMagic)
 	}
-	if v := binary.LittleEndian.Uint16(b[len(encodingMagic):]); v != encodingVersion {
-		return nil, fmt.Errorf("format version %d; this build reads version %d", v, encodingVersion)
+	v := binary.LittleEndian.Uint16(b[len(encodingMagic):])
+	if v < 1 || v > encodingVersion {
+		return nil, fmt.Errorf("format version %d; this build reads versions 1 to %d", v, encodingVersion)
 	}
 	end := len(b) - encodingSum
 	if got, want := crc32.Checksum(b[:end], castagnoli), binary.LittleEndian.Uint32(b[end:]); got != want {
 		return nil, fmt.Errorf("checksum %08x, want %08x: the bytes are damaged or truncated", got, want)
 	}
 	m := new(Model)
-	r := encReader{b: b[encodingHead:end]}
+	r := encReader{b: b[encodingHead:end], version: v}
 	for _, s := range sections {
+		if s.since > v {
+			continue // an older model, written before this section existed
+		}
 		tag := r.u8("section tag")
 		if r.err == nil && tag != s.tag {
 			return nil, fmt.Errorf("section tag %d where %d (%s) belongs", tag, s.tag, s.name)
@@ -176,7 +190,7 @@ func decode(b []byte) (*Model, error) {
 		if r.err != nil {
 			return nil, fmt.Errorf("section %s: %w", s.name, r.err)
 		}
-		sub := encReader{b: r.b[r.off : r.off+n]}
+		sub := encReader{b: r.b[r.off : r.off+n], version: v}
 		r.off += n
 		s.read(&sub, m)
 		if sub.err == nil && sub.off != len(sub.b) {
@@ -263,6 +277,11 @@ func (w *encWriter) params(m *Model) {
 	w.varint(int64(p.Bins))
 	w.uvarint(p.Seed)
 	w.varint(int64(p.PermutationRows))
+	w.str(string(p.Loss))
+	w.float(p.LearningRate)
+	w.float(p.LeafPenalty)
+	w.float(p.HoldoutFraction)
+	w.varint(int64(p.Patience))
 }
 
 func (w *encWriter) features(m *Model) {
@@ -282,7 +301,7 @@ func (w *encWriter) features(m *Model) {
 }
 
 func (w *encWriter) trees(m *Model) {
-	W := m.Width()
+	W := m.treeWidth()
 	w.uvarint(uint64(len(m.Trees)))
 	for _, t := range m.Trees {
 		w.uvarint(uint64(len(t.Nodes)))
@@ -353,13 +372,27 @@ func (w *encWriter) importance(m *Model) {
 	w.floats(m.Importance.PermutationStd)
 }
 
+func (w *encWriter) boost(m *Model) {
+	b := m.Boost
+	if b == nil {
+		return
+	}
+	w.str(string(b.Loss))
+	w.floats(b.InitScore)
+	w.uvarint(uint64(b.Rounds))
+	w.uvarint(uint64(b.BestRound))
+	w.floats(b.TrainLoss)
+	w.floats(b.HoldoutLoss)
+}
+
 // encReader reads encoded fields from untrusted bytes. The first error sticks: later reads
 // return zero values and consume nothing, so a caller checks err once after a group of
 // reads, and a count read after an error is 0, which keeps loops and allocations empty.
 type encReader struct {
-	b   []byte
-	off int
-	err error
+	b       []byte
+	off     int
+	err     error
+	version uint16 // the format version being read: models of version 1 stay readable
 }
 
 func (r *encReader) fail(format string, args ...any) {
@@ -532,6 +565,14 @@ func (r *encReader) params(m *Model) {
 	p.Bins = r.signed("bins")
 	p.Seed = r.uvarint("seed")
 	p.PermutationRows = r.signed("permutation_rows")
+	if r.version < 2 {
+		return // version 1 predates boosting: its controls keep their zero values
+	}
+	p.Loss = Loss(r.str("loss"))
+	p.LearningRate = r.float("learning_rate")
+	p.LeafPenalty = r.float("leaf_penalty")
+	p.HoldoutFraction = r.float("holdout_fraction")
+	p.Patience = r.signed("patience")
 }
 
 func (r *encReader) features(m *Model) {
@@ -568,7 +609,7 @@ func (r *encReader) features(m *Model) {
 }
 
 func (r *encReader) trees(m *Model) {
-	W := m.Width()
+	W := m.treeWidth()
 	if W > math.MaxUint16 {
 		r.fail("%d classes; at most %d are supported", W, math.MaxUint16)
 		return
@@ -680,14 +721,31 @@ func (r *encReader) importance(m *Model) {
 	m.Importance.PermutationStd = r.floats("permutation std")
 }
 
+func (r *encReader) boost(m *Model) {
+	if len(r.b) == 0 {
+		return // not boosted
+	}
+	b := new(Boost)
+	b.Loss = Loss(r.str("loss"))
+	b.InitScore = r.floats("initial score")
+	b.Rounds = int(r.bounded("rounds", math.MaxInt32))
+	b.BestRound = int(r.bounded("best round", math.MaxInt32))
+	b.TrainLoss = r.floats("training loss")
+	b.HoldoutLoss = r.floats("holdout loss")
+	m.Boost = b
+}
+
 // checkStructure checks what Predict and the explaining code index by, so that a model
 // that passes can score any row without a panic or an endless loop. Decode runs it on
 // untrusted bytes; MarshalBinary runs it so that it never writes what Decode refuses.
 func (m *Model) checkStructure() error {
 	switch m.Method {
-	case MethodTree, MethodBagging, MethodForest:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting:
 	default:
 		return fmt.Errorf("unknown method %q", m.Method)
+	}
+	if err := m.checkBoost(); err != nil {
+		return err
 	}
 	switch m.Task {
 	case Classification:
@@ -730,12 +788,12 @@ func (m *Model) checkStructure() error {
 	if len(m.Trees) == 0 {
 		return errors.New("no trees")
 	}
-	W := m.Width()
 	for b, t := range m.Trees {
-		if err := t.checkStructure(W, m.Features); err != nil {
+		if err := t.checkStructure(m.treeWidth(), m.Features); err != nil {
 			return fmt.Errorf("tree %d: %w", b, err)
 		}
 	}
+	W := m.Width()
 	if o := m.OOB; o != nil {
 		if len(o.Votes) != m.Rows {
 			return fmt.Errorf("oob: %d votes for %d rows", len(o.Votes), m.Rows)
@@ -766,6 +824,40 @@ func (m *Model) checkStructure() error {
 		if imp.v != nil && len(imp.v) != F {
 			return fmt.Errorf("%s importance: %d values for %d features", imp.name, len(imp.v), F)
 		}
+	}
+	return nil
+}
+
+// checkBoost checks that a model is boosted exactly when its method says so, and that
+// its boosting record fits the trees and the link.
+func (m *Model) checkBoost() error {
+	b := m.Boost
+	if (m.Method == MethodBoosting) != (b != nil) {
+		return fmt.Errorf("method %q with boosting record %v", m.Method, b != nil)
+	}
+	if b == nil {
+		return nil
+	}
+	if m.OOB != nil {
+		return errors.New("a boosted model with out-of-bag results")
+	}
+	switch {
+	case b.Loss == LossSquared && m.Task == Regression:
+	case b.Loss == LossLogistic && m.Task == Classification && len(m.Classes) == 2:
+	default:
+		return fmt.Errorf("loss %q for %s with %d classes", b.Loss, m.Task, len(m.Classes))
+	}
+	if m.Params.Loss != b.Loss {
+		return fmt.Errorf("params say loss %q, the model has %q", m.Params.Loss, b.Loss)
+	}
+	if len(b.InitScore) != 1 {
+		return fmt.Errorf("%d initial scores; want 1", len(b.InitScore))
+	}
+	if b.BestRound < 1 || b.BestRound > b.Rounds || b.BestRound != len(m.Trees) {
+		return fmt.Errorf("best round %d of %d rounds with %d trees", b.BestRound, b.Rounds, len(m.Trees))
+	}
+	if len(b.TrainLoss) != b.Rounds || (b.HoldoutLoss != nil && len(b.HoldoutLoss) != b.Rounds) {
+		return fmt.Errorf("%d training and %d holdout losses for %d rounds", len(b.TrainLoss), len(b.HoldoutLoss), b.Rounds)
 	}
 	return nil
 }

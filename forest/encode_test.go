@@ -132,6 +132,11 @@ func encFixtures(t testing.TB) []encFixture {
 		{"mixed/forest", mixC, nil, mixCols, params(MethodForest, func(p *Params) { p.Trees = 20 })},
 		{"mixed/bagging-regression", mixR, nil, mixCols, params(MethodBagging, func(p *Params) { p.MaxDepth = 6 })},
 		{"mixed/forest-regression", mixR, nil, mixCols, params(MethodForest, func(p *Params) { p.FeaturesPerSplit = 0.5 })},
+		{"friedman1/boosting", fried.dataset(t, "y"), fried, nil, params(MethodBoosting, func(p *Params) {
+			p.RowFraction, p.LeafPenalty, p.HoldoutFraction, p.Patience = 0.7, 1, 0.2, 3
+		})},
+		{"breast_cancer/boosting", bc.dataset(t, "diagnosis"), bc, nil, params(MethodBoosting, func(p *Params) { p.MaxDepth = 3 })},
+		{"mixed/boosting-regression", mixR, nil, mixCols, params(MethodBoosting, func(p *Params) { p.FeaturesPerSplit = 2 })},
 	}
 	out := make([]encFixture, len(cases))
 	for i, c := range cases {
@@ -266,7 +271,7 @@ func encReseal(b []byte) []byte {
 
 // encWrapBody frames section bytes with a valid head and checksum.
 func encWrapBody(body []byte) []byte {
-	b := append([]byte(encodingMagic), 1, 0)
+	b := binary.LittleEndian.AppendUint16([]byte(encodingMagic), encodingVersion)
 	b = append(b, body...)
 	return binary.LittleEndian.AppendUint32(b, crc32.Checksum(b, castagnoli))
 }
@@ -351,7 +356,8 @@ func TestEncodeRoundTrip(t *testing.T) {
 // encoded (with a new format version) and added here.
 func TestEncodeCoversEveryField(t *testing.T) {
 	want := map[reflect.Type][]string{
-		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance"},
+		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost"},
+		reflect.TypeFor[Boost]():       {"Loss", "InitScore", "Rounds", "BestRound", "TrainLoss", "HoldoutLoss"},
 		reflect.TypeFor[FeatureInfo](): {"Name", "Kind", "Levels", "Binning"},
 		reflect.TypeFor[Binning]():     {"Kind", "Upper", "LevelBin", "Counts"},
 		reflect.TypeFor[Tree]():        {"Nodes", "Gain", "Cover", "Value", "Width", "LevelSets"},
@@ -361,7 +367,8 @@ func TestEncodeCoversEveryField(t *testing.T) {
 		reflect.TypeFor[Importance]():  {"Impurity", "Permutation", "PermutationStd"},
 		// Threads and Progress are not stored: they never change the model.
 		reflect.TypeFor[Params](): {"Method", "Task", "Impurity", "Trees", "MaxDepth", "MinLeaf", "MinGain",
-			"FeaturesPerSplit", "RowFraction", "WithReplacement", "Bins", "Seed", "Threads", "PermutationRows", "Progress"},
+			"FeaturesPerSplit", "RowFraction", "WithReplacement", "Bins", "Seed", "Threads", "PermutationRows", "Progress",
+			"Loss", "LearningRate", "LeafPenalty", "HoldoutFraction", "Patience"},
 	}
 	for typ, names := range want {
 		var have []string
@@ -437,7 +444,9 @@ func encHandSections() [][]encField {
 		{{"p.method", encStr("bagging")}, {"p.task", encStr("regression")}, {"p.impurity", encStr("")},
 			{"p.trees", encSv(1)}, {"p.max_depth", encSv(0)}, {"p.min_leaf", encF64(1)}, {"p.min_gain", encF64(0)},
 			{"p.features_per_split", encF64(0)}, {"p.row_fraction", encF64(1)}, {"p.with_replacement", []byte{1}},
-			{"p.bins", encSv(255)}, {"p.seed", encUv(1)}, {"p.permutation_rows", encSv(10000)}},
+			{"p.bins", encSv(255)}, {"p.seed", encUv(1)}, {"p.permutation_rows", encSv(10000)},
+			{"p.loss", encStr("")}, {"p.learning_rate", encF64(0)}, {"p.leaf_penalty", encF64(0)},
+			{"p.holdout_fraction", encF64(0)}, {"p.patience", encSv(0)}},
 		{{"features", encUv(1)}, {"f.name", encStr("x")}, {"f.kind", []byte{1}}, {"f.levels", encUv(0)},
 			{"f.upper", encJoin(encUv(3), encF64(1.5, math.Inf(1)))}, {"f.level_bins", encUv(0)}, {"f.counts", encJoin(encUv(4), encF64(0, 2, 2))}},
 		trees,
@@ -447,6 +456,7 @@ func encHandSections() [][]encField {
 			{"o.curve_metric", encStr("mse")}, {"o.scored", encUv(2)}},
 		{{"imp.impurity", encJoin(encUv(2), encF64(1))}, {"imp.permutation", encJoin(encUv(2), encF64(math.Copysign(0, -1)))},
 			{"imp.permutation_std", encUv(0)}},
+		{}, // not boosted
 	}
 }
 
@@ -601,7 +611,7 @@ func TestDecodeCorruptFields(t *testing.T) {
 		}, "impurity importance: 2 values for 1 features"},
 		{"empty importance", func(s [][]encField) [][]encField { return encSet(s, "imp.permutation_std", encUv(1)) }, "permutation std importance: 0 values"},
 		{"bytes left in a section", func(s [][]encField) [][]encField { s[0] = append(s[0], encField{"extra", []byte{0}}); return s }, "section model: 1 bytes left over"},
-		{"seventh section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
+		{"eighth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -619,7 +629,9 @@ func TestDecodeCorruptFields(t *testing.T) {
 func TestDecodeHead(t *testing.T) {
 	good := encMust(t, encHandModel())
 	version := slices.Clone(good)
-	version[4] = 2
+	version[4] = encodingVersion + 1
+	version0 := slices.Clone(good)
+	version0[4] = 0
 	tag := encReseal(good)
 	tag[6] = 2
 	cases := []struct {
@@ -630,7 +642,8 @@ func TestDecodeHead(t *testing.T) {
 		{"nil", nil, "0 bytes are too few"},
 		{"short", good[:9], "9 bytes are too few"},
 		{"magic", append([]byte("CPSX"), good[4:]...), `not a model: starts with "CPSX", want "CPSM"`},
-		{"version", version, "format version 2; this build reads version 1"},
+		{"version", version, "format version 3; this build reads versions 1 to 2"},
+		{"version 0", version0, "format version 0; this build reads versions 1 to 2"},
 		{"checksum", append(slices.Clone(good[:len(good)-1]), good[len(good)-1]^1), "checksum"},
 		{"section order", encReseal(tag), "section tag 2 where 1 (model) belongs"},
 	}
@@ -810,11 +823,14 @@ func encFuzzSeeds(t testing.TB) [][]byte {
 	mixedR, _ := encMixedData(t, 60, true)
 	small := DefaultParams(MethodForest)
 	small.Trees, small.MaxDepth, small.Bins = 2, 3, 8
+	boost := DefaultParams(MethodBoosting)
+	boost.Trees, boost.MaxDepth, boost.Bins, boost.HoldoutFraction = 3, 2, 8, 0.2
+	bc := readTable(t, "breast_cancer.csv")
 	seeds := [][]byte{encMust(t, encHandModel())}
 	for _, c := range []struct {
 		d *Dataset
 		p Params
-	}{{iris.dataset(t, "species"), stump}, {mixed, small}, {mixedR, small}} {
+	}{{iris.dataset(t, "species"), stump}, {mixed, small}, {mixedR, small}, {bc.dataset(t, "diagnosis"), boost}} {
 		m, err := Train(context.Background(), c.d, c.p)
 		if err != nil {
 			t.Fatal(err)

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"sync"
 	"sync/atomic"
 )
 
@@ -32,10 +33,22 @@ type trainSet struct {
 	totalWidth int
 	score      func([]float64) float64
 	impurity   Impurity
+	// newton marks boosting's statistics: per bin (H, S, N) = (Σwh, −Σwg, Σw) and node
+	// totals (H, S, N, Σwh·(g/h)²), so that leaf sizes (MinLeaf) count row weight N while
+	// gains and values use the hessian H. rowWeight holds w per row (nil: all ones).
+	newton    bool
+	rowWeight []float64
+	// penalty is the L2 penalty λ on leaf values (boosting): a node scores S²/(H+λ)
+	// (score and scanNewton) and its value is S/(H+λ) (setValue). Zero elsewhere, which
+	// leaves the plain squared-error mean unchanged.
+	penalty float64
 }
 
 // weightOf is the weight held by histogram statistics s.
 func (ts *trainSet) weightOf(s []float64) float64 {
+	if ts.newton {
+		return s[2]
+	}
 	if ts.task == Regression {
 		return s[0]
 	}
@@ -52,6 +65,10 @@ type growConfig struct {
 	minLeaf  float64
 	minGain  float64 // share of the root weight
 	drawn    int     // features drawn per split
+	// threads splits the drawn features of large nodes between goroutines (boosting,
+	// whose rounds run one at a time). Each bin's sum still runs over the rows in order,
+	// so the histograms are the same on any number of threads.
+	threads int
 }
 
 // pending is a node waiting on the grower's stack; its rows are rows[start:end].
@@ -59,6 +76,7 @@ type pending struct {
 	node       int32
 	start, end int32
 	depth      int32
+	hist       int32 // index of its ready histograms in grower.pool, or -1
 }
 
 // catEntry is one value bin of a categorical feature at a node, with its sort key.
@@ -96,6 +114,22 @@ type grower struct {
 	parentScore  float64 // score of the node being split
 	stack        []pending
 	totals       []float64 // totals of stack entry k at k*totalWidth
+
+	// subtract: boosting with every feature drawn keeps each node's histograms and gets
+	// the larger child's as parent minus smaller child, building only the smaller one
+	// from its rows. pool holds full histograms of every feature; free lists unused ones.
+	subtract bool
+	pool     [][]float64
+	free     []int32
+	// leafRows lists, after grow, each leaf with the range of rows it holds; boosting
+	// updates the scores of the tree's rows from it without walking the tree.
+	leafRows []leafRange
+}
+
+// leafRange is a leaf and its rows, rows[start:end] of the grown tree.
+type leafRange struct {
+	node       int32
+	start, end int32
 }
 
 func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
@@ -121,6 +155,7 @@ func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
 		inLeft:  make([]bool, maxBins),
 		here:    make([]bool, maxBins),
 	}
+	g.subtract = set.newton && cfg.drawn == set.features
 	if set.task == Regression {
 		g.yv, g.tmpY = make([]float64, set.rows), make([]float64, set.rows)
 	} else {
@@ -151,7 +186,12 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 		width = set.classes
 	}
 	t := &Tree{Width: width}
-	g.stack = append(g.stack[:0], pending{node: t.addNode(width), start: 0, end: int32(len(rows))})
+	g.free = g.free[:0]
+	for i := range g.pool {
+		g.free = append(g.free, int32(i))
+	}
+	g.stack = append(g.stack[:0], pending{node: t.addNode(width), start: 0, end: int32(len(rows)), hist: -1})
+	g.leafRows = g.leafRows[:0]
 	g.totals = slices.Grow(g.totals[:0], T)[:T]
 	g.nodeTotals(0, len(rows), g.totals[:T])
 	rootW := g.weight(g.totals[:T])
@@ -171,11 +211,19 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 		t.Cover[e.node] = w
 		g.setValue(t, int(e.node), w)
 		if !g.splittable(e, w) {
+			g.release(e.hist)
+			g.leafRows = append(g.leafRows, leafRange{e.node, e.start, e.end})
 			continue
 		}
 		g.parentScore = set.score(g.cur[:set.stat])
+		if g.subtract && e.hist < 0 {
+			e.hist = g.acquire()
+			g.buildAll(g.pool[e.hist], int(e.start), int(e.end))
+		}
 		g.findSplit(e)
 		if !g.best.valid() || g.best.gain < minGain-tol {
+			g.release(e.hist)
+			g.leafRows = append(g.leafRows, leafRange{e.node, e.start, e.end})
 			continue
 		}
 		nl := g.partition(e, &g.best)
@@ -199,8 +247,14 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 			n.Threshold = set.bins[g.best.feature].Upper[g.best.bin-1]
 		}
 		d := e.depth + 1
-		g.push(pending{node: left + 1, start: mid, end: e.end, depth: d}, g.r)
-		g.push(pending{node: left, start: e.start, end: mid, depth: d}, g.l)
+		lh, rh := int32(-1), int32(-1)
+		if g.cfg.maxDepth == 0 || int(d) < g.cfg.maxDepth {
+			lh, rh = g.childHistograms(e.hist, int(e.start), int(mid), int(e.end))
+		} else {
+			g.release(e.hist) // the children are leaves
+		}
+		g.push(pending{node: left + 1, start: mid, end: e.end, depth: d, hist: rh}, g.r)
+		g.push(pending{node: left, start: e.start, end: mid, depth: d, hist: lh}, g.l)
 	}
 	t.trim()
 	return t, nil
@@ -212,6 +266,9 @@ func (g *grower) push(p pending, totals []float64) {
 }
 
 func (g *grower) weight(totals []float64) float64 {
+	if g.set.newton {
+		return totals[2]
+	}
 	if g.set.task == Regression {
 		return totals[0]
 	}
@@ -225,6 +282,12 @@ func (g *grower) splittable(e pending, w float64) bool {
 	}
 	if e.end-e.start < 2 || w < 2*g.cfg.minLeaf {
 		return false
+	}
+	if g.set.newton {
+		h := g.cur[0]
+		mean := g.cur[1] / h
+		mse := g.cur[3]/h - mean*mean
+		return mse > 1e-14*math.Max(g.cur[3]/h, math.SmallestNonzeroFloat64)
 	}
 	if g.set.task == Regression {
 		mean := g.cur[1] / w
@@ -244,6 +307,21 @@ func (g *grower) splittable(e pending, w float64) bool {
 func (g *grower) nodeTotals(start, end int, dst []float64) {
 	clear(dst)
 	wts := g.wts[start:end]
+	if g.set.newton {
+		rw := g.set.rowWeight
+		for i, v := range g.yv[start:end] {
+			w := wts[i]
+			n := 1.0
+			if rw != nil {
+				n = rw[g.rows[start+i]]
+			}
+			dst[0] += w
+			dst[1] += w * v
+			dst[2] += n
+			dst[3] += w * v * v
+		}
+		return
+	}
 	if g.set.task == Regression {
 		for i, v := range g.yv[start:end] {
 			w := wts[i]
@@ -261,7 +339,7 @@ func (g *grower) nodeTotals(start, end int, dst []float64) {
 func (g *grower) setValue(t *Tree, node int, w float64) {
 	v := t.NodeValue(node)
 	if g.set.task == Regression {
-		v[0] = g.cur[1] / w
+		v[0] = g.cur[1] / (g.cur[0] + g.set.penalty) // cur[0] is w, or H for boosting
 		return
 	}
 	for k := range v {
@@ -275,6 +353,10 @@ func (g *grower) setValue(t *Tree, node int, w float64) {
 // reference code does.
 func (g *grower) findSplit(e pending) {
 	g.best.feature, g.best.gain = -1, math.Inf(-1)
+	if e.hist >= 0 {
+		g.scanAll(g.pool[e.hist])
+		return
+	}
 	p := len(g.order)
 	for k := 0; k < p && !g.best.valid(); {
 		n := 1
@@ -312,6 +394,8 @@ func (g *grower) evaluate(feats []int, e pending) {
 	lo, hi := g.lo[:len(feats)], g.hi[:len(feats)]
 	rows, wts := g.rows[start:end], g.wts[start:end]
 	switch {
+	case set.newton:
+		g.newtonHistograms(g.hist, feats, rows, wts, g.yv[start:end], lo, hi, track)
 	case set.task == Regression && set.mat8 != nil:
 		histRegression(g.hist, g.stride, set.mat8, set.features, feats, rows, wts, g.yv[start:end], lo, hi, track)
 	case set.task == Regression:
@@ -330,6 +414,114 @@ func (g *grower) evaluate(feats []int, e pending) {
 			g.scanNumeric(f, h, lo[j], hi[j])
 		}
 		clear(g.hist[base+lo[j]*S : base+(hi[j]+1)*S])
+	}
+}
+
+// parallelRows: nodes with fewer rows build their histograms on one goroutine, where
+// starting others would cost more than it saves.
+const parallelRows = 8192
+
+// newtonHistograms builds boosting's histograms, splitting the features of a large node
+// between up to cfg.threads goroutines.
+func (g *grower) newtonHistograms(hist []float64, feats []int, rows []int32, wts, y []float64, lo, hi []int, track bool) {
+	set := g.set
+	build := func(j0, j1 int) {
+		h := hist[j0*g.stride:]
+		if set.mat8 != nil {
+			histNewton(h, g.stride, set.mat8, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
+		} else {
+			histNewton(h, g.stride, set.mat16, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
+		}
+	}
+	parts := min(g.cfg.threads, len(feats))
+	if parts <= 1 || len(rows) < parallelRows {
+		build(0, len(feats))
+		return
+	}
+	var wg sync.WaitGroup
+	for k := range parts {
+		j0, j1 := k*len(feats)/parts, (k+1)*len(feats)/parts
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			build(j0, j1)
+		}()
+	}
+	wg.Wait()
+}
+
+// acquire returns the index of a zeroed pool histogram.
+func (g *grower) acquire() int32 {
+	if n := len(g.free); n > 0 {
+		i := g.free[n-1]
+		g.free = g.free[:n-1]
+		clear(g.pool[i])
+		return i
+	}
+	g.pool = append(g.pool, make([]float64, g.set.features*g.stride))
+	return int32(len(g.pool) - 1)
+}
+
+// release returns pool histogram i (none when negative) to the free list.
+func (g *grower) release(i int32) {
+	if i >= 0 {
+		g.free = append(g.free, i)
+	}
+}
+
+// buildAll fills h with the histograms of every feature over rows[start:end].
+func (g *grower) buildAll(h []float64, start, end int) {
+	F := g.set.features
+	for j := range F {
+		g.lo[j], g.hi[j] = 0, g.set.bins[j].NumBins()-1
+	}
+	g.newtonHistograms(h, g.order[:F], g.rows[start:end], g.wts[start:end], g.yv[start:end], g.lo[:F], g.hi[:F], false)
+}
+
+// childHistograms turns parent histogram ph into the histograms of the children
+// rows[start:mid] and rows[mid:end]: it builds the smaller child's from its rows and
+// subtracts it from the parent's in place for the larger. It returns their pool indices
+// (left, right); with no parent histogram, both are -1.
+func (g *grower) childHistograms(ph int32, start, mid, end int) (int32, int32) {
+	if ph < 0 {
+		return -1, -1
+	}
+	sh := g.acquire()
+	small, large := g.pool[sh], g.pool[ph]
+	if mid-start <= end-mid {
+		g.buildAll(small, start, mid)
+	} else {
+		g.buildAll(small, mid, end)
+	}
+	for k := 0; k < len(large); k += 3 {
+		n := large[k+2] - small[k+2]
+		if n <= 1e-12*large[k+2] {
+			// The larger child has no rows here; drop the rounding residue of H and S
+			// so the bin reads as empty.
+			large[k], large[k+1], large[k+2] = 0, 0, 0
+			continue
+		}
+		large[k] -= small[k]
+		large[k+1] -= small[k+1]
+		large[k+2] = n
+	}
+	if mid-start <= end-mid {
+		return sh, ph
+	}
+	return ph, sh
+}
+
+// scanAll scans the ready histograms h of every feature for the best split.
+func (g *grower) scanAll(h []float64) {
+	S := g.set.stat
+	for f := range g.set.features {
+		nb := g.set.bins[f].NumBins()
+		hf := h[f*g.stride : f*g.stride+nb*S]
+		if g.set.bins[f].Kind == Categorical {
+			g.scanCategorical(f, hf, 0, nb-1)
+		} else {
+			g.scanNumeric(f, hf, 0, nb-1)
+		}
 	}
 }
 
@@ -364,6 +556,9 @@ func (g *grower) scanNumeric(f int, h []float64, lo, hi int) {
 		wm = set.weightOf(miss)
 	}
 	switch {
+	case set.newton:
+		g.scanNewton(f, h, max(lo, 1), hi, miss)
+		return
 	case set.task == Regression:
 		g.scanRegression(f, h, max(lo, 1), hi, miss)
 		return
@@ -462,6 +657,38 @@ func (g *grower) scanRegression(f int, h []float64, lo, hi int, miss []float64) 
 	}
 }
 
+// scanNewton is scanNumeric for boosting's statistics (H, S, N): leaves must hold row
+// weight N ≥ MinLeaf, and the score is S²/(H+λ).
+func (g *grower) scanNewton(f int, h []float64, lo, hi int, miss []float64) {
+	mh, ms, mn := miss[0], miss[1], miss[2]
+	th, ts, tn := g.cur[0]-mh, g.cur[1]-ms, g.cur[2]-mn
+	hasMissing := mn > 0
+	minLeaf, parent, lam := g.cfg.minLeaf, g.parentScore, g.set.penalty
+	var ah, as, an float64
+	for b := lo; b <= hi; b++ {
+		hn := h[3*b+2]
+		if hn == 0 {
+			continue
+		}
+		ah += h[3*b]
+		as += h[3*b+1]
+		an += hn
+		rh, rs, rn := th-ah, ts-as, tn-an
+		if an >= minLeaf && rn+mn >= minLeaf {
+			gain := as*as/(ah+lam) + (rs+ms)*(rs+ms)/(rh+mh+lam) - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, false, hasMissing)
+			}
+		}
+		if hasMissing && an+mn >= minLeaf && rn >= minLeaf {
+			gain := (as+ms)*(as+ms)/(ah+mh+lam) + rs*rs/(rh+lam) - parent
+			if g.best.better(gain, f) {
+				g.setNumeric(f, gain, b, true, hasMissing)
+			}
+		}
+	}
+}
+
 // scanCategorical orders the node's levels by their target statistic and scans that
 // order as if it were numeric. For a binary target or regression the best subset split
 // is a prefix of this order (Fisher 1958; Breiman et al. 1984, §9.4). With more classes
@@ -493,7 +720,7 @@ func (g *grower) scanCategorical(f int, h []float64, lo, hi int) {
 			w := set.weightOf(hb)
 			switch {
 			case set.task == Regression:
-				g.cat[i].key = hb[1] / w
+				g.cat[i].key = hb[1] / hb[0] // the mean, or boosting's Newton step S/H
 			case set.classes == 2:
 				g.cat[i].key = hb[1] / w
 			default:

@@ -39,6 +39,30 @@ func histRegression[B uint8 | uint16](h []float64, stride int, mat []B, p int, f
 	}
 }
 
+// histNewton adds each row's (wh, wh·y, w) to the bin of every drawn feature, where the
+// grower's weight is wh and its target y = −g/h; rowWeight (nil: ones) gives w by row.
+func histNewton[B uint8 | uint16](h []float64, stride int, mat []B, p int, feats []int, rows []int32, wts []float64, y []float64, rowWeight []float64, lo, hi []int, track bool) {
+	for i, r := range rows {
+		rec := mat[int(r)*p : int(r)*p+p]
+		w := wts[i]
+		wy := w * y[i]
+		n := 1.0
+		if rowWeight != nil {
+			n = rowWeight[r]
+		}
+		for j, f := range feats {
+			b := int(rec[f])
+			k := j*stride + 3*b
+			h[k] += w
+			h[k+1] += wy
+			h[k+2] += n
+			if track {
+				lo[j], hi[j] = min(lo[j], b), max(hi[j], b)
+			}
+		}
+	}
+}
+
 // splitRule is a chosen split in bin terms: numeric bins 1…bin go left, or, when left is
 // set, the bins it marks (bin 0, missing, included).
 type splitRule struct {

@@ -27,8 +27,50 @@ type Model struct {
 	Rows     int    // training rows
 	Trees    []*Tree
 
-	OOB        *OOB // nil for MethodTree
+	OOB        *OOB // nil for MethodTree and MethodBoosting
 	Importance Importance
+	// Boost is set on boosted models: they sum their trees and add an initial score
+	// instead of averaging.
+	Boost *Boost
+}
+
+// Boost is what a boosted model adds: how its raw score starts and becomes a prediction,
+// and the training curve.
+type Boost struct {
+	Loss Loss
+	// InitScore is the raw score before any tree: the weighted mean target (squared) or
+	// the log-odds of the weighted positive rate (logistic). One number per tree output.
+	InitScore []float64
+	// Rounds is how many rounds were trained; BestRound how many were kept (their trees
+	// are Model.Trees): all of them without early stopping, else the best holdout round.
+	Rounds, BestRound int
+	// TrainLoss and HoldoutLoss hold the loss after each round: mean squared error
+	// (squared) or mean log loss (logistic), weighted. HoldoutLoss is nil without a
+	// holdout.
+	TrainLoss, HoldoutLoss []float64
+}
+
+// treeWidth is how many numbers each tree's node holds: one raw score per boosted tree,
+// else one per prediction. It follows the method, which decoding reads before the trees.
+func (m *Model) treeWidth() int {
+	if m.Method == MethodBoosting {
+		return 1
+	}
+	return m.Width()
+}
+
+// logisticLink is the logistic link 1/(1+e^−F); it saturates to 0 or 1 without overflow.
+func logisticLink(f float64) float64 { return 1 / (1 + math.Exp(-f)) }
+
+// link turns a boosted raw score into dst: the value (squared), or the class
+// probabilities [1−p, p] (logistic).
+func (b *Boost) link(raw float64, dst []float64) {
+	if b.Loss == LossLogistic {
+		p := logisticLink(raw)
+		dst[0], dst[1] = 1-p, p
+		return
+	}
+	dst[0] = raw
 }
 
 // Width is how many numbers a prediction holds: one per class, or one value.
@@ -40,11 +82,20 @@ func (m *Model) Width() int {
 }
 
 // PredictRow writes the prediction for one row into dst, which must hold Width numbers,
-// and returns it: class probabilities averaged over trees, or the mean value. A row holds
+// and returns it: class probabilities averaged over trees, or the mean value; a boosted
+// model sums its trees onto the initial score and applies the loss's link. A row holds
 // one number per feature in model order: categorical features as level codes, NaN (or a
 // negative code) for missing values. It does not allocate.
 func (m *Model) PredictRow(row, dst []float64) []float64 {
 	dst = dst[:m.Width()]
+	if b := m.Boost; b != nil {
+		raw := b.InitScore[0]
+		for _, t := range m.Trees {
+			raw += t.Value[t.Leaf(row)]
+		}
+		b.link(raw, dst)
+		return dst
+	}
 	clear(dst)
 	for _, t := range m.Trees {
 		v := t.NodeValue(t.Leaf(row))
@@ -122,9 +173,27 @@ func (m *Model) Predict(cols [][]float64, out []float64, threads int) error {
 // (a SQL executor per chunk) call it directly.
 func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int32) {
 	W := m.Width()
-	clear(out)
 	n := len(rows) / p
 	leaves = leaves[:n]
+	if b := m.Boost; b != nil && n > 0 {
+		// Raw scores gather in the last slot of each row's output, in tree order as in
+		// PredictRow, then pass through the link.
+		raw := out[W-1 : n*W]
+		for i := range n {
+			raw[i*W] = b.InitScore[0]
+		}
+		for _, t := range m.Trees {
+			t.LeafBatch(rows, p, leaves)
+			for i, leaf := range leaves {
+				raw[i*W] += t.Value[leaf]
+			}
+		}
+		for i := range n {
+			b.link(raw[i*W], out[i*W:(i+1)*W])
+		}
+		return
+	}
+	clear(out)
 	for _, t := range m.Trees {
 		t.LeafBatch(rows, p, leaves)
 		if W == 1 {

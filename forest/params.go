@@ -18,6 +18,20 @@ const (
 	// MethodForest is bagging plus a fresh random subset of features at each split
 	// (Breiman 2001).
 	MethodForest Method = "forest"
+	// MethodBoosting fits shallow trees one after another, each to the gradient of the
+	// loss at the current scores, and sums them (Friedman 2001).
+	MethodBoosting Method = "boosting"
+)
+
+// Loss is the loss a boosted model minimises; it fixes the initial score and the link.
+type Loss string
+
+// The losses.
+const (
+	// LossSquared is ½(y − F)²: identity link, for regression.
+	LossSquared Loss = "squared"
+	// LossLogistic is the binomial log loss with F the log-odds of the second class.
+	LossLogistic Loss = "logistic"
 )
 
 // Task is what the target asks for.
@@ -52,6 +66,13 @@ const (
 	// over many trees is stable well before every row is used.
 	DefaultPermutationRows = 10000
 
+	// Boosting: a shrinkage of 0.1 and depth 6 are the common starting point for shallow
+	// boosted trees (Friedman 2001 recommends a learning rate of 0.1 or less); patience 10
+	// rides out the noise of a small holdout without training far past the best round.
+	DefaultLearningRate = 0.1
+	DefaultBoostDepth   = 6
+	DefaultPatience     = 10
+
 	MaxBins = 65535 // bin codes are uint16 at most, with one code kept for missing values
 )
 
@@ -62,20 +83,24 @@ type Params struct {
 	// Task is taken from the target when empty: categorical targets classify.
 	Task     Task
 	Impurity Impurity // classification only; default Gini
-	// Trees is the number of trees (always 1 for MethodTree).
+	// Trees is the number of trees (always 1 for MethodTree); for boosting, the most
+	// rounds, one tree each.
 	Trees int
 	// MaxDepth limits tree depth (root = depth 0); 0 means unlimited.
 	MaxDepth int
 	// MinLeaf is the least weight a leaf may hold; unweighted, that is a row count
-	// (bootstrap copies count once each).
+	// (bootstrap copies count once each). Boosting counts row weight too, not the
+	// hessian weight its gains use.
 	MinLeaf float64
 	// MinGain is the least impurity decrease a split must bring, as a share of the
 	// root's weight (the decrease at the node × node weight / root weight).
 	MinGain float64
-	// FeaturesPerSplit: 0 for the method's default, a count when ≥ 1, a fraction of the
-	// features when in (0, 1).
+	// FeaturesPerSplit: 0 for the method's default (forest: √p or p/3; boosting: all), a
+	// count when ≥ 1, a fraction of the features when in (0, 1).
 	FeaturesPerSplit float64
-	// RowFraction is the share of rows drawn for each tree (bagging and forests).
+	// RowFraction is the share of rows drawn for each tree (bagging and forests), or for
+	// each boosting round, always without replacement (stochastic gradient boosting,
+	// Friedman 2002).
 	RowFraction float64
 	// WithReplacement draws rows with replacement (the bootstrap) when true.
 	WithReplacement bool
@@ -87,6 +112,20 @@ type Params struct {
 	// PermutationRows caps the out-of-bag rows per tree used for permutation
 	// importance; negative turns permutation importance off.
 	PermutationRows int
+
+	// Loss is the boosting loss; empty takes squared for regression and logistic for
+	// classification.
+	Loss Loss
+	// LearningRate shrinks every boosted tree's values (boosting only), in (0, 1].
+	LearningRate float64
+	// LeafPenalty is the L2 penalty λ on boosted leaf values: a leaf's value is
+	// −Σg/(Σh + λ). Boosting only; ≥ 0.
+	LeafPenalty float64
+	// HoldoutFraction is the share of rows held out to stop boosting early; 0 trains every
+	// round. In [0, 1).
+	HoldoutFraction float64
+	// Patience is how many rounds without a better holdout loss end boosting.
+	Patience int
 
 	// Progress, when set, is called after each finished tree with the number done and the
 	// total. Calls come from one goroutine at a time.
@@ -108,6 +147,11 @@ func DefaultParams(m Method) Params {
 	if m == MethodTree {
 		p.Trees = 1
 	}
+	if m == MethodBoosting {
+		// Each round draws its rows without replacement (Friedman 2002).
+		p.MaxDepth, p.WithReplacement = DefaultBoostDepth, false
+		p.LearningRate, p.Patience = DefaultLearningRate, DefaultPatience
+	}
 	return p
 }
 
@@ -115,9 +159,9 @@ func DefaultParams(m Method) Params {
 // checks that do (features per split against the feature count) run in Train.
 func (p Params) Validate() error {
 	switch p.Method {
-	case MethodTree, MethodBagging, MethodForest:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting:
 	default:
-		return fmt.Errorf("forest: method %q: want %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest)
+		return fmt.Errorf("forest: method %q: want %q, %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest, MethodBoosting)
 	}
 	switch p.Task {
 	case "", Classification, Regression:
@@ -157,12 +201,49 @@ func (p Params) Validate() error {
 	if p.Threads < 0 {
 		return fmt.Errorf("forest: threads %d: want 0 (all cores) or more", p.Threads)
 	}
+	return p.validateBoosting()
+}
+
+// validateBoosting checks the boosting controls, and that other methods leave them unset.
+func (p Params) validateBoosting() error {
+	if p.Method != MethodBoosting {
+		if p.Loss != "" {
+			return fmt.Errorf("forest: loss %q: only method %q takes a loss", p.Loss, MethodBoosting)
+		}
+		return nil
+	}
+	switch p.Loss {
+	case "", LossSquared, LossLogistic:
+	default:
+		return fmt.Errorf("forest: loss %q: want %q or %q", p.Loss, LossSquared, LossLogistic)
+	}
+	switch {
+	case p.Task == Regression && p.Loss == LossLogistic:
+		return fmt.Errorf("forest: loss %q: regression takes %q", p.Loss, LossSquared)
+	case p.Task == Classification && p.Loss == LossSquared:
+		return fmt.Errorf("forest: loss %q: classification takes %q", p.Loss, LossLogistic)
+	}
+	if !(p.LearningRate > 0 && p.LearningRate <= 1) {
+		return fmt.Errorf("forest: learning_rate %g: want a number in (0, 1]", p.LearningRate)
+	}
+	if !(p.LeafPenalty >= 0) || math.IsInf(p.LeafPenalty, 0) {
+		return fmt.Errorf("forest: leaf_penalty %g: want a finite number ≥ 0", p.LeafPenalty)
+	}
+	if !(p.HoldoutFraction >= 0 && p.HoldoutFraction < 1) {
+		return fmt.Errorf("forest: holdout_fraction %g: want a number in [0, 1)", p.HoldoutFraction)
+	}
+	if p.Patience < 1 {
+		return fmt.Errorf("forest: patience %d: want at least 1", p.Patience)
+	}
+	if p.WithReplacement {
+		return fmt.Errorf("forest: with_replacement: method %q draws rows without replacement", MethodBoosting)
+	}
 	return nil
 }
 
 // featuresPerSplit resolves FeaturesPerSplit against p features.
 func (p Params) featuresPerSplit(task Task, features int) (int, error) {
-	if p.Method != MethodForest {
+	if p.Method != MethodForest && p.Method != MethodBoosting {
 		if p.FeaturesPerSplit != 0 && p.FeaturesPerSplit != float64(features) {
 			// Only the forest samples features; say so rather than ignore the control.
 			return 0, fmt.Errorf("forest: features_per_split %g: method %q considers every feature", p.FeaturesPerSplit, p.Method)
@@ -171,6 +252,8 @@ func (p Params) featuresPerSplit(task Task, features int) (int, error) {
 	}
 	var k int
 	switch f := p.FeaturesPerSplit; {
+	case f == 0 && p.Method == MethodBoosting:
+		k = features // boosting considers every feature unless told otherwise
 	case f == 0 && task == Classification:
 		k = int(math.Floor(math.Sqrt(float64(features))))
 	case f == 0:

@@ -45,7 +45,7 @@ func TestParamsValidate(t *testing.T) {
 		{"features_per_split 0.3", func(p *Params) { p.FeaturesPerSplit = 0.3 }, ""},
 		{"features_per_split 7", func(p *Params) { p.FeaturesPerSplit = 7 }, ""},
 		{"threads -1", func(p *Params) { p.Threads = -1 }, "threads"},
-		{"method unknown", func(p *Params) { p.Method = "boosting" }, "method"},
+		{"method unknown", func(p *Params) { p.Method = "stacking" }, "method"},
 		{"method empty", func(p *Params) { p.Method = "" }, "method"},
 		{"task unknown", func(p *Params) { p.Task = "ranking" }, "task"},
 		{"impurity unknown", func(p *Params) { p.Impurity = "misclassification" }, "impurity"},
@@ -74,7 +74,7 @@ func TestParamsValidate(t *testing.T) {
 			}
 		})
 	}
-	for _, m := range []Method{MethodTree, MethodBagging, MethodForest} {
+	for _, m := range []Method{MethodTree, MethodBagging, MethodForest, MethodBoosting} {
 		if err := DefaultParams(m).Validate(); err != nil {
 			t.Errorf("DefaultParams(%s): %v", m, err)
 		}

@@ -48,6 +48,17 @@ func squaredScore(s []float64) float64 {
 	return s[1] * s[1] / s[0]
 }
 
+// penalizedScore is squaredScore with the L2 leaf penalty λ: (Σwy)²/(W+λ). On Newton
+// statistics (W, Σwy) = (Σh, −Σg) it is the second-order gain of boosting.
+func penalizedScore(lambda float64) func([]float64) float64 {
+	return func(s []float64) float64 {
+		if s[0] <= 0 {
+			return 0
+		}
+		return s[1] * s[1] / (s[0] + lambda)
+	}
+}
+
 // splitInfo describes the best split found so far at a node.
 type splitInfo struct {
 	feature     int

@@ -37,8 +37,15 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	if p.Impurity == "" && task == Classification {
 		p.Impurity = Gini
 	}
-	if task == Regression {
+	if task == Regression || p.Method == MethodBoosting {
 		p.Impurity = ""
+	}
+	var loss Loss
+	if p.Method == MethodBoosting {
+		if loss, err = boostLoss(p, task, len(d.target.levels)); err != nil {
+			return nil, err
+		}
+		p.Loss = loss
 	}
 	threads := p.Threads
 	if threads == 0 {
@@ -74,14 +81,21 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 
 	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, drawn: drawn}
 	fr := &fitRun{d: d, set: set, p: p, cfg: cfg, stop: &stop}
-	m.Trees, fr.inbag, err = fr.growAll(threads)
+	if p.Method == MethodBoosting {
+		m.Trees, m.Boost, err = fr.boost(loss, threads)
+	} else {
+		m.Trees, fr.inbag, err = fr.growAll(threads)
+	}
 	if err != nil {
 		if ctx.Err() != nil {
 			return nil, fmt.Errorf("forest: train: %w", ctx.Err())
 		}
 		return nil, err
 	}
-	if p.Method != MethodTree {
+	// Out-of-bag results and permutation importance need bootstrap trees that each saw
+	// part of the rows; boosted trees fit each other's residuals, so neither applies.
+	bagged := p.Method != MethodTree && p.Method != MethodBoosting
+	if bagged {
 		oob, err := outOfBag(m, d, fr.inbag, threads, &stop)
 		if err != nil {
 			return nil, fmt.Errorf("forest: train: %w", ctx.Err())
@@ -89,7 +103,7 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 		m.OOB = oob
 	}
 	m.Importance.Impurity = impurityImportance(m)
-	if p.Method != MethodTree && p.PermutationRows >= 0 {
+	if bagged && p.PermutationRows >= 0 {
 		mean, sd, err := permutationImportance(m, d, fr.inbag, p, threads, &stop)
 		if err != nil {
 			return nil, fmt.Errorf("forest: train: %w", ctx.Err())
@@ -138,7 +152,15 @@ func binData(d *Dataset, task Task, p Params, threads int) *trainSet {
 			}
 		}
 	})
-	if task == Classification {
+	if p.Method == MethodBoosting {
+		// Boosted trees are regression trees on Newton targets whatever the task; the
+		// boosting loop writes the targets into yreg before each round.
+		set.task, set.newton, set.rowWeight = Regression, true, d.weights
+		set.yreg = make([]float64, d.rows)
+		set.stat, set.totalWidth = 3, 4
+		set.penalty = p.LeafPenalty
+		set.score = penalizedScore(p.LeafPenalty)
+	} else if task == Classification {
 		set.classes = len(d.target.levels)
 		set.ycls = d.target.codes
 		set.stat, set.totalWidth = set.classes, set.classes

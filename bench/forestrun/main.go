@@ -26,9 +26,12 @@ import (
 )
 
 func main() {
-	method := flag.String("method", "forest", "tree, bagging or forest")
+	method := flag.String("method", "forest", "tree, bagging, forest or boosting")
 	task := flag.String("task", "cls", "cls or reg (target column y)")
-	trees := flag.Int("trees", 100, "trees")
+	trees := flag.Int("trees", 100, "trees (boosting: rounds)")
+	learningRate := flag.Float64("learning-rate", forest.DefaultLearningRate, "boosting: learning rate")
+	depth := flag.Int("max-depth", -1, "max depth (-1: the method's default)")
+	minLeaf := flag.Float64("min-leaf", 0, "least leaf weight (0: the method's default)")
 	threads := flag.Int("threads", 2, "threads")
 	bins := flag.Int("bins", forest.DefaultBins, "bins")
 	permRows := flag.Int("permutation-rows", forest.DefaultPermutationRows, "out-of-bag rows per tree for permutation importance (-1: off)")
@@ -72,6 +75,15 @@ func main() {
 	p.Trees, p.Threads, p.Bins, p.PermutationRows = *trees, *threads, *bins, *permRows
 	if p.Method == forest.MethodTree {
 		p.Trees = 1
+	}
+	if p.Method == forest.MethodBoosting {
+		p.LearningRate = *learningRate
+	}
+	if *depth >= 0 {
+		p.MaxDepth = *depth
+	}
+	if *minLeaf > 0 {
+		p.MinLeaf = *minLeaf
 	}
 	t1 := time.Now()
 	m, err := forest.Train(context.Background(), d, p)

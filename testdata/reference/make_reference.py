@@ -17,7 +17,8 @@ import csv, datetime, json, math, os, platform
 import numpy as np
 import sklearn
 from sklearn.ensemble import RandomForestClassifier, RandomForestRegressor
-from sklearn.metrics import mean_squared_error, r2_score
+from sklearn.ensemble import HistGradientBoostingClassifier, HistGradientBoostingRegressor
+from sklearn.metrics import log_loss, mean_squared_error, r2_score
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -158,6 +159,31 @@ tree = DecisionTreeRegressor(random_state=0).fit(Xtr, ytr)
 ref["friedman1_tree"] = {
     "model": "DecisionTreeRegressor(random_state=0), fully grown, same split",
     "test_r2": r2_score(yte, tree.predict(Xte)),
+}
+
+# ---- 5. histogram gradient boosting: Friedman #1 and breast cancer ----------
+HGB = dict(max_iter=100, learning_rate=0.1, max_depth=6, max_leaf_nodes=None,
+           l2_regularization=0.0, min_samples_leaf=20, early_stopping=False, max_bins=255)
+HGB_TEXT = ("max_iter=100, learning_rate=0.1, max_depth=6, max_leaf_nodes=None, "
+            "l2_regularization=0, min_samples_leaf=20, early_stopping=False, max_bins=255")
+hgb = HistGradientBoostingRegressor(loss="squared_error", **HGB).fit(Xtr, ytr)
+ref["friedman1_boosting"] = {
+    "model": "HistGradientBoostingRegressor(" + HGB_TEXT + ") on friedman1_train.csv, "
+             "scored on friedman1_test.csv",
+    "test_rmse": math.sqrt(mean_squared_error(yte, hgb.predict(Xte))),
+}
+names, X, y = read_csv("breast_cancer.csv")
+# a fixed 30 % test split of the 569 rows (0-based row indices after the header)
+test_rows = sorted(int(i) for i in np.random.default_rng(20240103).permutation(len(y))[:171])
+is_test = np.zeros(len(y), dtype=bool)
+is_test[test_rows] = True
+hgb = HistGradientBoostingClassifier(loss="log_loss", **HGB).fit(X[~is_test], y[~is_test])
+assert list(hgb.classes_) == ["benign", "malignant"]
+ref["breast_cancer_boosting"] = {
+    "model": "HistGradientBoostingClassifier(" + HGB_TEXT + ") on the rows of breast_cancer.csv "
+             "not in test_rows, scored on test_rows; positive class malignant",
+    "test_rows": test_rows,
+    "test_log_loss": log_loss(y[is_test], hgb.predict_proba(X[is_test]), labels=hgb.classes_),
 }
 
 with open(os.path.join(HERE, "reference.json"), "w") as f:

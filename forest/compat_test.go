@@ -1,0 +1,62 @@
+package forest
+
+import (
+	"bytes"
+	"os"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+// corpusBytes reads the one []byte value of a Go fuzz corpus file.
+func corpusBytes(t *testing.T, path string) []byte {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, v, _ := strings.Cut(string(b), "\n")
+	v = strings.TrimSuffix(strings.TrimPrefix(strings.TrimSpace(v), "[]byte("), ")")
+	s, err := strconv.Unquote(v)
+	if err != nil {
+		t.Fatalf("%s: %v", path, err)
+	}
+	return []byte(s)
+}
+
+// A model written in format version 1 (before boosting existed) still decodes and scores
+// exactly as the same model written today: databases keep their models across builds.
+// testdata/models/mixed-forest.v1.cpsm is the "mixed-forest" fuzz seed as the version-1
+// encoder wrote it (commit 920a298); the current seed file holds the same model in the
+// current version.
+func TestDecodeVersion1(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/mixed-forest.v1.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 1 {
+		t.Fatalf("fixture is format version %d, want 1", old[4])
+	}
+	m1, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 1: %v", err)
+	}
+	cur, err := Decode(corpusBytes(t, "testdata/fuzz/FuzzDecode/seed-mixed-forest"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	b1, err := m1.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	b2, err := cur.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(b1, b2) {
+		t.Errorf("the version-1 model re-encodes to %d bytes that differ from today's encoding of the same model (%d bytes)", len(b1), len(b2))
+	}
+	if m1.Params.Loss != "" || m1.Params.LearningRate != 0 || m1.Boost != nil {
+		t.Errorf("version 1 model carries boosting fields: %+v", m1.Params)
+	}
+}
