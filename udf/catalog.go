@@ -129,8 +129,8 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 		Rows: int64(m.Rows), Features: len(m.Features), Trees: len(m.Trees),
 		CreatedAt: time.Now().UTC().Truncate(time.Microsecond), SizeBytes: int64(len(blob)), Source: source}
 	var oobMetric, oobValue any
-	if m.OOB != nil && len(m.OOB.Metrics) > 0 {
-		e.OOBMetric, e.OOBValue = m.OOB.Metrics[0].Name, m.OOB.Metrics[0].Value
+	if name, v, ok := summaryMetric(m); ok {
+		e.OOBMetric, e.OOBValue = name, v
 		oobMetric, oobValue = e.OOBMetric, e.OOBValue
 	}
 	var rowKeys, rowKeyNull, rowActual any

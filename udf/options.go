@@ -33,7 +33,16 @@ var trainOptions = []duck.Param{
 	{Name: "positive", Type: duck.Varchar},
 	{Name: "seed", Type: duck.Double},
 	{Name: "threads", Type: duck.Double},
+	// Boosting only.
+	{Name: "loss", Type: duck.Varchar},
+	{Name: "learning_rate", Type: duck.Double},
+	{Name: "leaf_penalty", Type: duck.Double},
+	{Name: "holdout_fraction", Type: duck.Double},
+	{Name: "patience", Type: duck.Double},
 }
+
+// boostOptions are the options only method 'boosting' takes.
+var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience"}
 
 // Task option values; "auto" lets the target's type decide.
 const (
@@ -138,10 +147,28 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		return nil, err
 	} else if ok {
 		switch m := forest.Method(strings.ToLower(v)); m {
-		case forest.MethodForest, forest.MethodBagging, forest.MethodTree:
+		case forest.MethodForest, forest.MethodBagging, forest.MethodTree, forest.MethodBoosting:
 			method = m
 		default:
-			return nil, fail("method %q: want 'forest', 'bagging' or 'tree'", v)
+			return nil, fail("method %q: want 'forest', 'bagging', 'tree' or 'boosting'", v)
+		}
+	}
+	// An option the method does not use would be silently ignored: refuse it instead.
+	if method == forest.MethodBoosting {
+		for _, opt := range []string{"impurity", "with_replacement"} {
+			if named[opt] != nil {
+				why := "boosted trees are regression trees fitted to the loss's gradients"
+				if opt == "with_replacement" {
+					why = "each boosting round draws its rows without replacement (see row_fraction)"
+				}
+				return nil, fail("%s: method 'boosting' does not take it: %s; it applies to 'forest', 'bagging' and 'tree'", opt, why)
+			}
+		}
+	} else {
+		for _, opt := range boostOptions {
+			if named[opt] != nil {
+				return nil, fail("%s: method '%s' does not take it; it applies to method := 'boosting'", opt, method)
+			}
 		}
 	}
 	p := forest.DefaultParams(method)
@@ -201,6 +228,8 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		{"trees", &p.Trees, nil}, {"max_depth", &p.MaxDepth, nil}, {"bins", &p.Bins, nil},
 		{"threads", &p.Threads, nil}, {"min_leaf", nil, &p.MinLeaf}, {"min_gain", nil, &p.MinGain},
 		{"features_per_split", nil, &p.FeaturesPerSplit}, {"row_fraction", nil, &p.RowFraction},
+		{"learning_rate", nil, &p.LearningRate}, {"leaf_penalty", nil, &p.LeafPenalty},
+		{"holdout_fraction", nil, &p.HoldoutFraction}, {"patience", &p.Patience, nil},
 	} {
 		var err error
 		if o.i != nil {
@@ -210,6 +239,16 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		}
 		if err != nil {
 			return nil, err
+		}
+	}
+	if v, ok, err := text("loss"); err != nil {
+		return nil, err
+	} else if ok {
+		switch l := forest.Loss(strings.ToLower(v)); l {
+		case forest.LossSquared, forest.LossLogistic:
+			p.Loss = l
+		default:
+			return nil, fail("loss %q: want 'squared' (regression) or 'logistic' (two classes)", v)
 		}
 	}
 	if v, ok := named["with_replacement"].(bool); ok {
@@ -223,8 +262,8 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		}
 		p.Seed = uint64(v)
 	}
-	if method != forest.MethodForest && named["features_per_split"] != nil {
-		return nil, fail("features_per_split: method '%s' considers every feature at each split; it applies to 'forest'", method)
+	if method != forest.MethodForest && method != forest.MethodBoosting && named["features_per_split"] != nil {
+		return nil, fail("features_per_split: method '%s' considers every feature at each split; it applies to 'forest' and 'boosting'", method)
 	}
 	if method == forest.MethodTree {
 		// A single tree takes every row once: a sampling option would be silently ignored.

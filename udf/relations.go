@@ -93,8 +93,11 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 		imp, std = m.Importance.Permutation, m.Importance.PermutationStd
 		if imp == nil {
 			why := "it was trained without it"
-			if m.Method == forest.MethodTree {
+			switch m.Method {
+			case forest.MethodTree:
 				why = "a single tree has no out-of-bag rows to permute"
+			case forest.MethodBoosting:
+				why = "boosting has no out-of-bag rows to permute"
 			}
 			return nil, fmt.Errorf("%s: model %q (version %d) has no permutation importance: %s; use method := 'impurity'", fn, e.Name, e.Version, why)
 		}
@@ -130,8 +133,12 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 
 // noOOB is the error for a model without out-of-bag results.
 func noOOB(fn string, m *forest.Model, e Entry) error {
-	return fmt.Errorf("%s: model %q (version %d), method %s: %w (a single tree sees every row; train a forest or bagging)",
-		fn, e.Name, e.Version, m.Method, ErrNoOOB)
+	why := "a single tree sees every row; train a forest or bagging"
+	if m.Method == forest.MethodBoosting {
+		why = "each boosted tree fits what the trees before it left unexplained on every training row, so no row is out of a bag; " +
+			"train with holdout_fraction := 0.2 (say) for a holdout loss in copse_train's row and copse_curve"
+	}
+	return fmt.Errorf("%s: model %q (version %d), method %s: %w (%s)", fn, e.Name, e.Version, m.Method, ErrNoOOB, why)
 }
 
 // bindOOB: copse_oob(model) → one row per training row, in training order:
@@ -257,12 +264,18 @@ func (h *Host) hasRowKeys(ctx context.Context, e Entry) (bool, error) {
 
 // bindCurve: copse_curve(model) → trees (BIGINT, 1…B), metric (VARCHAR: 'error' for
 // classification, 'mse' for regression), value (DOUBLE, the out-of-bag metric of the
-// first trees; NULL while no row has a vote).
+// first trees; NULL while no row has a vote). For a boosted model, trees is the round
+// (1…every round trained, also those past the kept best round) with metric 'train_loss'
+// and, when it was trained with a holdout, 'holdout_loss' next: the loss after that
+// round, mean squared error (loss 'squared') or mean log loss (loss 'logistic').
 func (h *Host) bindCurve(call duck.TableCall) (*duck.TableBinding, error) {
 	const fn = "copse_curve"
 	m, e, _, err := h.relationModel(fn, call)
 	if err != nil {
 		return nil, err
+	}
+	if b := m.Boost; b != nil {
+		return boostCurve(fn, b, e)
 	}
 	if m.OOB == nil {
 		return nil, noOOB(fn, m, e)
@@ -275,6 +288,40 @@ func (h *Host) bindCurve(call duck.TableCall) (*duck.TableBinding, error) {
 				out.SetInt64(0, j, int64(b+1))
 				out.SetString(1, j, metric)
 				setFloat(out, 2, j, curve[b])
+			}), nil
+		},
+	}, nil
+}
+
+// Metrics of a boosted model's curve.
+const (
+	curveTrainLoss   = "train_loss"
+	curveHoldoutLoss = "holdout_loss"
+)
+
+// boostCurve is copse_curve's rows for a boosted model: per round, its training loss and
+// then its holdout loss (when there is a holdout).
+func boostCurve(fn string, b *forest.Boost, e Entry) (*duck.TableBinding, error) {
+	per := 1
+	if b.HoldoutLoss != nil {
+		per = 2
+		if len(b.HoldoutLoss) != len(b.TrainLoss) {
+			return nil, fmt.Errorf("%s: model %q (version %d): %d holdout losses for %d rounds", fn, e.Name, e.Version, len(b.HoldoutLoss), len(b.TrainLoss))
+		}
+	}
+	return &duck.TableBinding{
+		Columns: []duck.Column{{Name: "trees", Type: duck.BigInt}, {Name: "metric", Type: duck.Varchar}, {Name: "value", Type: duck.Double}},
+		Init: func() (duck.FillFunc, error) {
+			return rowsFill(per*len(b.TrainLoss), func(out *duck.Chunk, j, i int) {
+				r := i / per
+				out.SetInt64(0, j, int64(r+1))
+				if i%per == 0 {
+					out.SetString(1, j, curveTrainLoss)
+					setFloat(out, 2, j, b.TrainLoss[r])
+				} else {
+					out.SetString(1, j, curveHoldoutLoss)
+					setFloat(out, 2, j, b.HoldoutLoss[r])
+				}
 			}), nil
 		},
 	}, nil

@@ -48,7 +48,11 @@ func (h *Host) bindTrain(call duck.TableCall) (*duck.TableBinding, error) {
 	if err != nil {
 		return nil, err
 	}
-	if _, err := c.resolve(cols); err != nil {
+	l, err := c.resolve(cols)
+	if err != nil {
+		return nil, err
+	}
+	if err := c.checkLoss(l, cols); err != nil {
 		return nil, err
 	}
 	connID := call.ConnID
@@ -96,7 +100,8 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 	p.Progress = func(done, total int) {
 		h.jobs.update(job, func(j *Job) {
 			j.TreesDone, j.Trees = done, total
-			if done == total && p.Method != forest.MethodTree {
+			bagged := p.Method != forest.MethodTree && p.Method != forest.MethodBoosting
+			if done == total && bagged {
 				j.Stage = "out-of-bag" // the out-of-bag pass and permutation importance follow
 			}
 		})
@@ -111,6 +116,50 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}
 	return trainResult{entry: e, skipped: data.skipped, seconds: time.Since(start).Seconds()}, nil
+}
+
+// checkLoss refuses, before any training, a loss that does not fit the target as it is
+// trained: 'logistic' needs classes, 'squared' a numeric value. A target whose kind only
+// the data tell is left to the engine, whose error names the loss too.
+func (c *trainCall) checkLoss(l *layout, cols []srcColumn) error {
+	loss := c.params.Loss
+	if loss == "" || l.classify < 0 {
+		return nil
+	}
+	t := cols[l.target]
+	switch {
+	case loss == forest.LossLogistic && l.classify == 0:
+		return fmt.Errorf("copse_train %q: loss 'logistic' needs a two-class target, and target %q (%s) is trained as regression; use loss := 'squared' or task := 'classification'",
+			c.name, t.name, t.typ)
+	case loss == forest.LossSquared && l.classify == 1:
+		return fmt.Errorf("copse_train %q: loss 'squared' needs a numeric target, and target %q (%s) is trained as classification; use loss := 'logistic'",
+			c.name, t.name, t.typ)
+	}
+	return nil
+}
+
+// Summary metric names of boosted models: the holdout loss at the kept round, mean
+// squared error (loss 'squared') or mean log loss (loss 'logistic').
+const (
+	holdoutMSE     = "holdout_mse"
+	holdoutLogLoss = "holdout_log_loss"
+)
+
+// summaryMetric is the one metric copse_train's row and copse_models report: the first
+// out-of-bag metric of a bagged model, the holdout loss at the best round of a boosted
+// model trained with a holdout; ok is false when there is none.
+func summaryMetric(m *forest.Model) (name string, value float64, ok bool) {
+	if m.OOB != nil && len(m.OOB.Metrics) > 0 {
+		return m.OOB.Metrics[0].Name, m.OOB.Metrics[0].Value, true
+	}
+	if b := m.Boost; b != nil && b.BestRound >= 1 && len(b.HoldoutLoss) >= b.BestRound {
+		name = holdoutMSE
+		if b.Loss == forest.LossLogistic {
+			name = holdoutLogLoss
+		}
+		return name, b.HoldoutLoss[b.BestRound-1], true
+	}
+	return "", 0, false
 }
 
 // setEntryHead writes the columns copse_train and copse_models share, in their order:

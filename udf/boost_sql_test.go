@@ -1,0 +1,351 @@
+package udf
+
+import (
+	"database/sql"
+	"encoding/csv"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+
+	"github.com/copse-dev/copse/forest"
+)
+
+// Gradient boosting through SQL: copse_train's boosting options reach the engine, the
+// summary row carries the holdout loss, copse_curve the losses by round, and the scoring
+// functions score boosted models as the engine does.
+
+// Sources of the shared test data, as copse_train's source argument.
+const (
+	bsFriedman = "read_csv(''../testdata/friedman1_train.csv'')"
+	bsCancer   = "read_csv(''../testdata/breast_cancer.csv'')"
+)
+
+// bsRegressionCSV reads a CSV file of the shared test data in Go, independently of
+// DuckDB, with every column numeric and target the regression target.
+func bsRegressionCSV(t testing.TB, file, target string) *forest.Dataset {
+	t.Helper()
+	f, err := os.Open(filepath.Join("..", "testdata", file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	recs, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := forest.NewDataset(len(recs) - 1)
+	for j, name := range recs[0] {
+		vals := make([]float64, len(recs)-1)
+		for i, r := range recs[1:] {
+			if vals[i], err = strconv.ParseFloat(r[j], 64); err != nil {
+				t.Fatalf("%s row %d column %s: %v", file, i+1, name, err)
+			}
+		}
+		if name == target {
+			err = d.SetRegressionTarget(name, vals)
+		} else {
+			err = d.AddNumeric(name, vals)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	return d
+}
+
+// bsTrain trains from SQL and returns copse_train's row as text (NULL as "NULL"), by
+// column name.
+func bsTrain(t testing.TB, db *sql.DB, name, source, opts string) map[string]string {
+	t.Helper()
+	q := "SELECT * FROM copse_train('" + name + "', '" + source + "', " + opts + ")"
+	got := trRows(t, db, q)
+	if len(got) != 1 || len(got[0]) != len(trainColumns) {
+		t.Fatalf("%s: %v", q, got)
+	}
+	out := map[string]string{}
+	for i, c := range trainColumns {
+		out[c.Name] = got[0][i]
+	}
+	return out
+}
+
+// The boosting options reach the engine: the model trained from SQL on a CSV that DuckDB
+// reads encodes to the very bytes of forest.Train's with the same Params on the file read
+// in Go.
+func TestBoostSQLMatchesEngine(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	fr := bsRegressionCSV(t, "friedman1_train.csv", "y")
+	for _, tc := range []struct {
+		opts string
+		p    func(p *forest.Params)
+	}{
+		{"trees := 40, seed := 7", func(p *forest.Params) { p.Trees, p.Seed = 40, 7 }},
+		{"loss := 'squared', trees := 30, max_depth := 3, learning_rate := 0.2, leaf_penalty := 1.5, min_leaf := 5, " +
+			"row_fraction := 0.8, features_per_split := 0.5, bins := 64, seed := 11, threads := 1",
+			func(p *forest.Params) {
+				p.Loss, p.Trees, p.MaxDepth, p.LearningRate, p.LeafPenalty, p.MinLeaf = forest.LossSquared, 30, 3, 0.2, 1.5, 5
+				p.RowFraction, p.FeaturesPerSplit, p.Bins, p.Seed = 0.8, 0.5, 64, 11
+			}},
+		{"trees := 60, learning_rate := 0.3, holdout_fraction := 0.25, patience := 4, seed := 3",
+			func(p *forest.Params) {
+				p.Trees, p.LearningRate, p.HoldoutFraction, p.Patience, p.Seed = 60, 0.3, 0.25, 4, 3
+			}},
+	} {
+		row := bsTrain(t, db, "fr", bsFriedman, "target := 'y', method := 'boosting', "+tc.opts)
+		if row["method"] != "boosting" || row["task"] != "regression" || row["rows"] != "2000" || row["features"] != "10" {
+			t.Errorf("%s: summary %v", tc.opts, row)
+		}
+		p := forest.DefaultParams(forest.MethodBoosting)
+		tc.p(&p)
+		trSameModel(t, h, "fr", fr, p)
+	}
+
+	bc := trCSV(t, "breast_cancer.csv", "diagnosis")
+	row := bsTrain(t, db, "bcb", bsCancer, "target := 'diagnosis', method := 'BOOSTING', loss := 'logistic', trees := 25, max_depth := 4, seed := 2")
+	if row["task"] != "classification" || row["oob_metric"] != "NULL" || row["oob_value"] != "NULL" || row["trees"] != "25" {
+		t.Errorf("breast cancer: summary %v", row)
+	}
+	p := forest.DefaultParams(forest.MethodBoosting)
+	p.Loss, p.Trees, p.MaxDepth, p.Seed = forest.LossLogistic, 25, 4, 2
+	trSameModel(t, h, "bcb", bc, p)
+	if m, _ := trModel(t, h, "bcb"); m.Boost == nil || m.Boost.Loss != forest.LossLogistic || !slices.Equal(m.Classes, []string{"benign", "malignant"}) {
+		t.Errorf("breast cancer: boost %+v, classes %q", m.Boost, m.Classes)
+	}
+}
+
+// copse_score, copse_label and copse_predict score boosted models bit for bit as the
+// engine's Predict does.
+func TestBoostSQLScoring(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	mustExec(t, db, "CREATE TABLE bc AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/breast_cancer.csv')")
+	mustExec(t, db, "CREATE TABLE fr_test AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/friedman1_test.csv')")
+	bsTrain(t, db, "bcb", bsCancer, "target := 'diagnosis', method := 'boosting', trees := 40, learning_rate := 0.2, seed := 5")
+	bsTrain(t, db, "frb", bsFriedman, "target := 'y', method := 'boosting', trees := 40, holdout_fraction := 0.2, seed := 5")
+
+	m, _ := trModel(t, h, "bcb")
+	want := enginePredict(t, db, m, "SELECT * FROM bc ORDER BY id")
+	if len(want) != 2*569 {
+		t.Fatalf("engine: %d numbers", len(want))
+	}
+	sameBits(t, "copse_score", queryFloats(t, db, "SELECT copse_score('bcb', b) FROM bc b ORDER BY id"), column(want, 2, 1))
+	sameBits(t, "copse_score benign", queryFloats(t, db, "SELECT copse_score('bcb', b, 'benign') FROM bc b ORDER BY id"), column(want, 2, 0))
+	sameBits(t, "copse_predict", queryFloats(t, db, "SELECT probability FROM copse_predict('bcb', 'bc') ORDER BY id"), column(want, 2, 1))
+	// Each row scored alone equals the batch.
+	row := make([]float64, len(m.Features))
+	cols := engineCols(t, db, m, "SELECT * FROM bc ORDER BY id")
+	for i := range 569 {
+		for f := range cols {
+			row[f] = cols[f][i]
+		}
+		got := m.PredictRow(row, make([]float64, 2))
+		if math.Float64bits(got[1]) != math.Float64bits(want[2*i+1]) {
+			t.Fatalf("row %d: PredictRow %v, Predict %v", i, got[1], want[2*i+1])
+		}
+	}
+	var labels []string
+	for i := range 569 {
+		labels = append(labels, m.Classes[forest.Class(want[2*i:2*i+2])])
+	}
+	if got := queryStrings(t, db, "SELECT copse_label('bcb', b) FROM bc b ORDER BY id"); !slices.Equal(got, labels) {
+		t.Errorf("copse_label differs from the engine's classes")
+	}
+	if got := queryStrings(t, db, "SELECT prediction FROM copse_predict('bcb', 'bc') ORDER BY id"); !slices.Equal(got, labels) {
+		t.Errorf("copse_predict's prediction differs from the engine's classes")
+	}
+	// The boosted model separates the classes on its own training rows.
+	wrong := 0
+	for i, l := range queryStrings(t, db, "SELECT diagnosis FROM bc ORDER BY id") {
+		if l != labels[i] {
+			wrong++
+		}
+	}
+	if wrong > 569/20 {
+		t.Errorf("%d of 569 training rows misclassified", wrong)
+	}
+
+	r, _ := trModel(t, h, "frb")
+	want = enginePredict(t, db, r, "SELECT * FROM fr_test ORDER BY id")
+	sameBits(t, "copse_score regression", queryFloats(t, db, "SELECT copse_score('frb', x) FROM fr_test x ORDER BY id"), want)
+	sameBits(t, "copse_predict regression", queryFloats(t, db, "SELECT prediction FROM copse_predict('frb', 'fr_test') ORDER BY id"), want)
+	wantErr(t, db, "SELECT copse_label('frb', x) FROM fr_test x", `"frb"`, "regression")
+}
+
+// copse_curve is the boosting record: training and holdout loss by round, rounds past the
+// kept best one included; early stopping keeps the best holdout round, and the summary
+// row and copse_models report its holdout loss.
+func TestBoostSQLCurveAndEarlyStopping(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	const trees, patience = 300, 5
+	row := bsTrain(t, db, "es", bsFriedman, "target := 'y', method := 'boosting', trees := 300, learning_rate := 0.5, "+
+		"holdout_fraction := 0.2, patience := 5, seed := 9")
+	m, e := trModel(t, h, "es")
+	b := m.Boost
+	if b == nil || b.HoldoutLoss == nil {
+		t.Fatalf("boost %+v", b)
+	}
+	if b.BestRound < 1 || b.BestRound > b.Rounds || b.Rounds > trees || len(m.Trees) != b.BestRound {
+		t.Fatalf("best round %d, rounds %d, trees %d", b.BestRound, b.Rounds, len(m.Trees))
+	}
+	if b.Rounds == trees || b.Rounds != b.BestRound+patience {
+		t.Errorf("rounds %d, best %d: want early stopping %d rounds after the best", b.Rounds, b.BestRound, patience)
+	}
+	best := b.HoldoutLoss[b.BestRound-1]
+	for r, l := range b.HoldoutLoss {
+		if l < best || (l == best && r < b.BestRound-1) {
+			t.Errorf("round %d holdout loss %v beats the kept round %d's %v", r+1, l, b.BestRound, best)
+		}
+	}
+	if row["oob_metric"] != holdoutMSE || row["trees"] != strconv.Itoa(b.BestRound) {
+		t.Errorf("summary %v: want %s over %d trees", row, holdoutMSE, b.BestRound)
+	}
+	if v, err := strconv.ParseFloat(row["oob_value"], 64); err != nil || v != best {
+		t.Errorf("summary oob_value %q, want %v", row["oob_value"], best)
+	}
+	sameBits(t, "copse_models oob_value", queryFloats(t, db, "SELECT oob_value FROM copse_models() WHERE name = 'es'"), []float64{best})
+	if e.OOBMetric != holdoutMSE {
+		t.Errorf("catalog metric %q", e.OOBMetric)
+	}
+
+	rounds := queryFloats(t, db, "SELECT DISTINCT trees FROM copse_curve('es') ORDER BY trees")
+	wantRounds := make([]float64, b.Rounds)
+	for r := range wantRounds {
+		wantRounds[r] = float64(r + 1)
+	}
+	sameBits(t, "curve rounds", rounds, wantRounds)
+	sameBits(t, "train_loss", queryFloats(t, db, "SELECT value FROM copse_curve('es') WHERE metric = 'train_loss' ORDER BY trees"), b.TrainLoss)
+	sameBits(t, "holdout_loss", queryFloats(t, db, "SELECT value FROM copse_curve('es') WHERE metric = 'holdout_loss' ORDER BY trees"), b.HoldoutLoss)
+	if n := queryFloats(t, db, "SELECT count(*) FROM copse_curve('es')"); n[0] != float64(2*b.Rounds) {
+		t.Errorf("curve: %v rows, want %d", n, 2*b.Rounds)
+	}
+	// The training loss falls round after round on squared loss with full rows.
+	if b.TrainLoss[len(b.TrainLoss)-1] >= b.TrainLoss[0] {
+		t.Errorf("train loss %v … %v", b.TrainLoss[0], b.TrainLoss[len(b.TrainLoss)-1])
+	}
+
+	// Logistic, no holdout: only the training loss, every round kept, no summary metric.
+	row = bsTrain(t, db, "lg", bsCancer, "target := 'diagnosis', method := 'boosting', trees := 20, seed := 4")
+	if row["oob_metric"] != "NULL" || row["oob_value"] != "NULL" {
+		t.Errorf("no holdout: summary %v", row)
+	}
+	lg, _ := trModel(t, h, "lg")
+	if lg.Boost.Rounds != 20 || lg.Boost.BestRound != 20 || lg.Boost.HoldoutLoss != nil {
+		t.Errorf("no holdout: %+v", lg.Boost)
+	}
+	if got := queryStrings(t, db, "SELECT DISTINCT metric FROM copse_curve('lg')"); !slices.Equal(got, []string{curveTrainLoss}) {
+		t.Errorf("no holdout: metrics %q", got)
+	}
+	sameBits(t, "logistic train_loss", queryFloats(t, db, "SELECT value FROM copse_curve('lg') ORDER BY trees"), lg.Boost.TrainLoss)
+
+	// Logistic with a holdout: log loss.
+	row = bsTrain(t, db, "lgh", bsCancer, "target := 'diagnosis', method := 'boosting', trees := 30, holdout_fraction := 0.2, seed := 4")
+	lgh, _ := trModel(t, h, "lgh")
+	if row["oob_metric"] != holdoutLogLoss {
+		t.Errorf("logistic holdout: summary %v", row)
+	}
+	sameBits(t, "logistic holdout", queryFloats(t, db, "SELECT oob_value FROM copse_train('lgh', '"+bsCancer+"', target := 'diagnosis', "+
+		"method := 'boosting', trees := 30, holdout_fraction := 0.2, seed := 4)"), []float64{lgh.Boost.HoldoutLoss[lgh.Boost.BestRound-1]})
+	sameBits(t, "logistic holdout_loss", queryFloats(t, db, "SELECT value FROM copse_curve('lgh') WHERE metric = 'holdout_loss' ORDER BY trees"),
+		lgh.Boost.HoldoutLoss)
+}
+
+// copse_importance gives a boosted model's impurity importance; permutation importance
+// and copse_oob, which need out-of-bag rows, are refused with the reason.
+func TestBoostSQLRelations(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	bsTrain(t, db, "fr", bsFriedman, "target := 'y', method := 'boosting', trees := 20, seed := 1")
+	m, _ := trModel(t, h, "fr")
+	got := map[string]float64{}
+	rows := trRows(t, db, "SELECT feature, importance FROM copse_importance('fr')")
+	if len(rows) != len(m.Features) {
+		t.Fatalf("importance: %d rows", len(rows))
+	}
+	for _, r := range rows {
+		got[r[0]], _ = strconv.ParseFloat(r[1], 64)
+	}
+	for f, feat := range m.Features {
+		if got[feat.Name] != m.Importance.Impurity[f] {
+			t.Errorf("importance of %s: %v, want %v", feat.Name, got[feat.Name], m.Importance.Impurity[f])
+		}
+	}
+	// Friedman #1: x1…x5 drive y; x6…x10 are noise.
+	top := trRows(t, db, "SELECT feature FROM copse_importance('fr', method := 'impurity') WHERE rank <= 5 ORDER BY feature")
+	var names []string
+	for _, r := range top {
+		names = append(names, r[0])
+	}
+	if !slices.Equal(names, []string{"x1", "x2", "x3", "x4", "x5"}) {
+		t.Errorf("top 5 features %q", names)
+	}
+	wantErr(t, db, "FROM copse_importance('fr', method := 'permutation')", `"fr"`, "no permutation importance", "boosting", "'impurity'")
+	wantErr(t, db, "FROM copse_oob('fr')", "copse_oob", `"fr"`, "boosting", "out-of-bag", "holdout_fraction")
+	// Without a holdout the curve still has the training loss.
+	if n := queryFloats(t, db, "SELECT count(*) FROM copse_curve('fr')"); n[0] != 20 {
+		t.Errorf("curve: %v rows", n)
+	}
+}
+
+// Every boosting option's bad value, and every option the method does not take, is an
+// error naming the option, before or during the training; the catalog is left as it was.
+func TestBoostSQLBadOptions(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	trExec(t, db, "CREATE TABLE fr AS SELECT * FROM read_csv('../testdata/friedman1_train.csv')")
+	trExec(t, db, "CREATE TABLE bc AS SELECT * FROM read_csv('../testdata/breast_cancer.csv')")
+	trExec(t, db, "CREATE TABLE iris AS SELECT * FROM read_csv('../testdata/iris.csv')")
+	trRows(t, db, "CALL copse_train('kept', 'fr', target := 'y', method := 'boosting', trees := 3)")
+	trRows(t, db, "CALL copse_train('kept', 'fr', target := 'y', trees := 2)")
+	const ok = "'fr', target := 'y', method := 'boosting', trees := 5"
+	for _, tc := range []struct {
+		q    string
+		want []string
+	}{
+		{"CALL copse_train('m', " + ok + ", loss := 'hinge')", []string{`loss "hinge"`, "'squared'", "'logistic'"}},
+		{"CALL copse_train('m', " + ok + ", loss := '')", []string{"loss is empty"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'logistic')", []string{"loss 'logistic'", `target "y"`, "regression"}},
+		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', loss := 'squared')", []string{"loss 'squared'", `target "diagnosis"`, "classification"}},
+		{"CALL copse_train('m', " + ok + ", task := 'classification', loss := 'squared')", []string{`loss "squared"`, "classification"}},
+		{"CALL copse_train('m', " + ok + ", learning_rate := 0)", []string{"learning_rate 0", "(0, 1]"}},
+		{"CALL copse_train('m', " + ok + ", learning_rate := 1.5)", []string{"learning_rate 1.5", "(0, 1]"}},
+		{"CALL copse_train('m', " + ok + ", learning_rate := -0.1)", []string{"learning_rate -0.1"}},
+		{"CALL copse_train('m', " + ok + ", learning_rate := 'nan'::DOUBLE)", []string{"learning_rate NaN", "finite"}},
+		{"CALL copse_train('m', " + ok + ", learning_rate := 'fast')", []string{"fast"}},
+		{"CALL copse_train('m', " + ok + ", leaf_penalty := -1)", []string{"leaf_penalty -1", "≥ 0"}},
+		{"CALL copse_train('m', " + ok + ", leaf_penalty := 'inf'::DOUBLE)", []string{"leaf_penalty +Inf", "finite"}},
+		{"CALL copse_train('m', " + ok + ", holdout_fraction := 1)", []string{"holdout_fraction 1", "[0, 1)"}},
+		{"CALL copse_train('m', " + ok + ", holdout_fraction := -0.2)", []string{"holdout_fraction -0.2", "[0, 1)"}},
+		{"CALL copse_train('m', " + ok + ", holdout_fraction := 0.0001)", []string{"holdout_fraction 0.0001", "no rows"}},
+		{"CALL copse_train('m', " + ok + ", patience := 0)", []string{"patience 0", "at least 1"}},
+		{"CALL copse_train('m', " + ok + ", patience := 2.5)", []string{"patience 2.5", "whole number"}},
+		{"CALL copse_train('m', " + ok + ", with_replacement := true)", []string{"with_replacement", "'boosting'"}},
+		{"CALL copse_train('m', " + ok + ", with_replacement := false)", []string{"with_replacement", "'boosting'"}},
+		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', impurity := 'gini')", []string{"impurity", "'boosting'"}},
+		{"CALL copse_train('m', 'iris', target := 'species', method := 'boosting')", []string{`"m"`, "logistic", "3 classes"}},
+		{"CALL copse_train('m', 'fr', target := 'y', loss := 'squared')", []string{"loss", "'forest'", "'boosting'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', method := 'bagging', learning_rate := 0.1)", []string{"learning_rate", "'bagging'", "'boosting'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', method := 'tree', leaf_penalty := 1)", []string{"leaf_penalty", "'tree'", "'boosting'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', holdout_fraction := 0.2)", []string{"holdout_fraction", "'forest'", "'boosting'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', method := 'forest', patience := 3)", []string{"patience", "'forest'", "'boosting'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', method := 'boost')", []string{`method "boost"`, "'boosting'"}},
+	} {
+		trWantErr(t, db, tc.q, tc.want...)
+	}
+	if got := trRows(t, db, "SELECT count(*) FROM copse_models() WHERE name = 'm'"); got[0][0] != "0" {
+		t.Errorf("model m saved: %v", got)
+	}
+	if jobs := h.Jobs(); len(jobs) != 0 {
+		t.Errorf("jobs left behind: %+v", jobs)
+	}
+	// A NULL boosting option means "not given", as for every option.
+	trRows(t, db, "CALL copse_train('nulls', "+ok+", loss := NULL, learning_rate := NULL, patience := NULL)")
+	if got := trRows(t, db, "SELECT method, trees FROM copse_models() WHERE name = 'nulls'"); len(got) != 1 || !strings.EqualFold(got[0][0], "boosting") {
+		t.Errorf("nulls: %v", got)
+	}
+}
