@@ -58,12 +58,15 @@ func benchData(rows, numeric int, seed uint64) (*Dataset, [][]float64) {
 
 func BenchmarkTrain(b *testing.B) {
 	for _, rows := range []int{10_000, 100_000} {
-		for _, method := range []Method{MethodTree, MethodForest} {
+		for _, method := range []Method{MethodTree, MethodForest, MethodBoosting} {
 			b.Run(fmt.Sprintf("rows=%d/method=%s", rows, method), func(b *testing.B) {
 				d, _ := benchData(rows, 18, 1)
 				p := DefaultParams(method)
-				if method != MethodTree {
+				switch method {
+				case MethodForest:
 					p.Trees = 10
+				case MethodBoosting:
+					p.Trees = 20
 				}
 				p.PermutationRows = -1
 				b.ReportAllocs()

@@ -11,13 +11,14 @@ func histClasses[B uint8 | uint16](h []float64, stride int, mat []B, p int, feat
 	for i, r := range rows {
 		rec := mat[int(r)*p : int(r)*p+p]
 		w, c := wts[i], int(lab[i])
-		for j, f := range feats {
-			b := int(rec[f])
-			h[j*stride+b*classes+c] += w
-			if track {
-				lo[j], hi[j] = min(lo[j], b), max(hi[j], b)
-			}
+		base := c
+		for _, f := range feats {
+			h[base+int(rec[f])*classes] += w
+			base += stride
 		}
+	}
+	if track {
+		trackBins(mat, p, feats, rows, lo, hi)
 	}
 }
 
@@ -27,21 +28,25 @@ func histRegression[B uint8 | uint16](h []float64, stride int, mat []B, p int, f
 		rec := mat[int(r)*p : int(r)*p+p]
 		w := wts[i]
 		wy := w * y[i]
-		for j, f := range feats {
-			b := int(rec[f])
-			k := j*stride + 2*b
-			h[k] += w
-			h[k+1] += wy
-			if track {
-				lo[j], hi[j] = min(lo[j], b), max(hi[j], b)
-			}
+		base := 0
+		for _, f := range feats {
+			k := base + 2*int(rec[f])
+			hb := h[k : k+2 : k+2]
+			hb[0] += w
+			hb[1] += wy
+			base += stride
 		}
+	}
+	if track {
+		trackBins(mat, p, feats, rows, lo, hi)
 	}
 }
 
 // histNewton adds each row's (wh, wh·y, w) to the bin of every drawn feature, where the
 // grower's weight is wh and its target y = −g/h; rowWeight (nil: ones) gives w by row.
 func histNewton[B uint8 | uint16](h []float64, stride int, mat []B, p int, feats []int, rows []int32, wts []float64, y []float64, rowWeight []float64, lo, hi []int, track bool) {
+	y = y[:len(rows)]
+	wts = wts[:len(rows)]
 	for i, r := range rows {
 		rec := mat[int(r)*p : int(r)*p+p]
 		w := wts[i]
@@ -50,16 +55,18 @@ func histNewton[B uint8 | uint16](h []float64, stride int, mat []B, p int, feats
 		if rowWeight != nil {
 			n = rowWeight[r]
 		}
-		for j, f := range feats {
-			b := int(rec[f])
-			k := j*stride + 3*b
-			h[k] += w
-			h[k+1] += wy
-			h[k+2] += n
-			if track {
-				lo[j], hi[j] = min(lo[j], b), max(hi[j], b)
-			}
+		base := 0
+		for _, f := range feats {
+			k := base + 3*int(rec[f])
+			hb := h[k : k+3 : k+3] // one bounds check for the bin's three sums
+			hb[0] += w
+			hb[1] += wy
+			hb[2] += n
+			base += stride
 		}
+	}
+	if track {
+		trackBins(mat, p, feats, rows, lo, hi)
 	}
 }
 
@@ -116,4 +123,16 @@ func partitionRows[B uint8 | uint16](g *grower, mat []B, e pending, s splitRule)
 	copy(rows[nl:], g.tmpRows[:nr])
 	copy(wts[nl:], g.tmpW[:nr])
 	return nl
+}
+
+// trackBins narrows lo[j], hi[j] to the bins that feats[j] takes on rows; a separate pass,
+// so that the histogram loops carry no per-row branch (it runs on small nodes only).
+func trackBins[B uint8 | uint16](mat []B, p int, feats []int, rows []int32, lo, hi []int) {
+	for _, r := range rows {
+		rec := mat[int(r)*p : int(r)*p+p]
+		for j, f := range feats {
+			b := int(rec[f])
+			lo[j], hi[j] = min(lo[j], b), max(hi[j], b)
+		}
+	}
 }
