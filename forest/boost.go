@@ -1,10 +1,12 @@
 package forest
 
 import (
+	"cmp"
 	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 )
 
 // Gradient boosting (Friedman 2001) with second-order leaf values. Each round computes,
@@ -15,7 +17,9 @@ import (
 // weight N; the step is shrunk by the learning rate and added to F for every row. Rounds
 // run one after another; per-row work, fixed blocks of sums and the histograms of large
 // nodes (split by feature) are spread over threads, so the model does not depend on
-// Params.Threads.
+// Params.Threads. Absolute, Huber and quantile loss grow each tree on their (clipped or
+// signed) gradient with h = 1, then refit the leaves to a quantile of their residuals
+// (Friedman 2001 §4.2–4.4); the multinomial loss grows one tree per class per round.
 
 // hessianFloor keeps −g/h finite when a logistic probability saturates (h = p(1−p)
 // rounds to 0): such rows keep a target of bounded size and almost no weight.
@@ -23,6 +27,14 @@ const hessianFloor = 1e-16
 
 // probClip keeps the initial log-odds finite when the training rows hold one class only.
 const probClip = 1e-15
+
+// poissonMaxScore caps the raw score F inside the Poisson gradient, hessian and loss
+// (e^30 ≈ 1e13), so that an extreme row cannot overflow them; no count data comes near.
+const poissonMaxScore = 30
+
+// huberAlpha is the quantile of |y − F| that sets the Huber loss's δ each round
+// (Friedman 2001 §4.4).
+const huberAlpha = 0.9
 
 // Stream tag of the holdout draw; row and permutation draws use 1 and 2.
 const streamHoldout = 3
@@ -37,27 +49,51 @@ type boostRun struct {
 	loss    Loss
 	y       []float64 // target: value, or 1 for the second class and 0 for the first
 	x       []float64 // rows in model coding, row-major, for the score update (or nil)
-	score   []float64 // raw score F of every row
+	score   []float64 // raw scores F of every row, K per row (row-major)
+	K       int       // raw scores per row: the classes (multinomial), else 1
+	mg, mh  []float64 // multinomial: each row's Newton target and w·h per class
 	hw      []float64 // w·h of every training row, refreshed each round
 	train   []int32   // training rows (positive weight, not held out), increasing
 	holdout []int32   // held-out rows (positive weight), increasing
 	threads int
+	alpha   float64 // quantile level: Params.Quantile (quantile), huberAlpha (huber)
+	delta   float64 // Huber δ of the current round
+	delta0  float64 // Huber δ of the first round: the loss curve's, so rounds compare
 }
 
 // boost trains the rounds and returns the kept trees and the boosting record.
 func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 	d, p := fr.d, fr.p
 	n := d.rows
-	br := &boostRun{fr: fr, loss: loss, y: make([]float64, n), score: make([]float64, n),
-		hw: make([]float64, n), threads: threads}
-	if loss == LossLogistic {
+	K := 1
+	if loss == LossMultinomial {
+		K = len(d.target.levels)
+	}
+	br := &boostRun{fr: fr, loss: loss, y: make([]float64, n), score: make([]float64, n*K),
+		hw: make([]float64, n), threads: threads, K: K}
+	if loss == LossLogistic || loss == LossMultinomial {
 		for i, c := range d.target.codes {
-			if c == 1 {
-				br.y[i] = 1
-			}
+			br.y[i] = float64(c) // 1 for the second class of two
 		}
 	} else {
 		copy(br.y, d.target.num)
+	}
+	switch loss {
+	case LossQuantile:
+		br.alpha = p.Quantile
+	case LossHuber:
+		br.alpha = huberAlpha
+	case LossPoisson:
+		pos := false
+		for i, y := range br.y {
+			if y < 0 && d.weight(i) > 0 {
+				return nil, nil, fmt.Errorf("forest: loss %q: target %q row %d is %g; want counts ≥ 0", loss, d.target.name, i, y)
+			}
+			pos = pos || (y > 0 && d.weight(i) > 0)
+		}
+		if !pos {
+			return nil, nil, fmt.Errorf("forest: loss %q: target %q has no value above 0", loss, d.target.name)
+		}
 	}
 	br.split(p)
 	if len(br.train) == 0 {
@@ -66,9 +102,25 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 	if p.HoldoutFraction > 0 && len(br.holdout) == 0 {
 		return nil, nil, fmt.Errorf("forest: holdout_fraction %g: no rows with positive weight were held out", p.HoldoutFraction)
 	}
-	init := br.initScore()
+	init := []float64{0}
+	if K > 1 {
+		init = br.classPriors()
+		br.mg, br.mh = make([]float64, n*K), make([]float64, n*K)
+	} else {
+		init[0] = br.initScore()
+	}
 	for i := range br.score {
-		br.score[i] = init
+		br.score[i] = init[i%K]
+	}
+	if e := d.exposure.num; e != nil {
+		// The offset log(exposure) (McCullagh & Nelder 1989, §6.2.3) rides in the raw
+		// score, so gradients, trees and losses see the mean count e·exp(F).
+		for i := range br.score {
+			br.score[i] += math.Log(e[i])
+		}
+	}
+	if loss == LossHuber {
+		br.delta0 = br.huberDelta()
 	}
 	if len(br.holdout) > 0 || p.RowFraction < 1 {
 		// Rows outside a round's sample walk the tree over their values, kept here in
@@ -82,7 +134,7 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 		})
 	}
 
-	b := &Boost{Loss: loss, InitScore: []float64{init}}
+	b := &Boost{Loss: loss, InitScore: init}
 	var trees []*Tree
 	cfg := fr.cfg
 	cfg.threads = threads
@@ -97,25 +149,36 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 		}
 		br.gradients()
 		rng := rand.New(rand.NewPCG(treeSeed(p.Seed, r, streamRows), uint64(r)))
-		rows, wts = rows[:0], wts[:0]
 		if p.RowFraction < 1 {
 			pick = br.subsample(p.RowFraction, rng, pick)
 		}
-		for k, i := range br.train {
-			if pick == nil || pick[k] {
-				rows = append(rows, i)
-				wts = append(wts, br.hw[i])
+		for c := range K {
+			if K > 1 {
+				// This round's targets and weights of class c, all from the scores
+				// before the round (Friedman 2001 §4.6).
+				yreg := fr.set.yreg
+				for _, i := range br.train {
+					yreg[i], br.hw[i] = br.mg[int(i)*K+c], br.mh[int(i)*K+c]
+				}
 			}
+			rows, wts = rows[:0], wts[:0]
+			for k, i := range br.train {
+				if pick == nil || pick[k] {
+					rows = append(rows, i)
+					wts = append(wts, br.hw[i])
+				}
+			}
+			t, err := g.grow(rows, wts, rng)
+			if err != nil {
+				return nil, nil, err
+			}
+			br.refit(t, g)
+			for k := range t.Value {
+				t.Value[k] *= p.LearningRate
+			}
+			br.update(t, g, pick, c)
+			trees = append(trees, t)
 		}
-		t, err := g.grow(rows, wts, rng)
-		if err != nil {
-			return nil, nil, err
-		}
-		for k := range t.Value {
-			t.Value[k] *= p.LearningRate
-		}
-		br.update(t, g, pick)
-		trees = append(trees, t)
 		b.Rounds++
 		b.TrainLoss = append(b.TrainLoss, br.meanLoss(br.train))
 		if br.holdout != nil {
@@ -135,8 +198,9 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 		}
 	}
 	b.BestRound = best + 1
-	clear(trees[b.BestRound:]) // let the rounds past the best go
-	return trees[:b.BestRound:b.BestRound], b, nil
+	kept := b.BestRound * K
+	clear(trees[kept:]) // let the rounds past the best go
+	return trees[:kept:kept], b, nil
 }
 
 // split draws the holdout: a seeded share of the rows with positive weight, drawn per
@@ -144,8 +208,11 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 func (br *boostRun) split(p Params) {
 	d := br.fr.d
 	groups := 1
-	if br.loss == LossLogistic {
+	switch br.loss {
+	case LossLogistic:
 		groups = 2
+	case LossMultinomial:
+		groups = br.K
 	}
 	hold := make([]bool, d.rows)
 	if p.HoldoutFraction > 0 {
@@ -186,11 +253,146 @@ func (br *boostRun) initScore() float64 {
 		swy += w * br.y[i]
 	}
 	mean := swy / sw
-	if br.loss == LossLogistic {
+	switch br.loss {
+	case LossLogistic:
 		q := min(max(mean, probClip), 1-probClip)
 		return math.Log(q / (1 - q))
+	case LossPoisson:
+		// The log of the mean count per unit of exposure: with it, predicted and
+		// observed totals agree (the balance property of the log link).
+		if e := d.exposure.num; e != nil {
+			swe := 0.0
+			for _, i := range br.train {
+				swe += d.weight(int(i)) * e[i]
+			}
+			return math.Log(max(swy/swe, probClip))
+		}
+		return math.Log(max(mean, probClip))
+	case LossAbsolute, LossHuber:
+		return br.quantile(br.train, 0.5, nil)
+	case LossQuantile:
+		return br.quantile(br.train, br.alpha, nil)
 	}
 	return mean
+}
+
+// classPriors are the multinomial initial scores: the log of each class's weighted
+// share of the training rows (clipped away from 0).
+func (br *boostRun) classPriors() []float64 {
+	d := br.fr.d
+	sw := make([]float64, br.K)
+	total := 0.0
+	for _, i := range br.train {
+		w := d.weight(int(i))
+		sw[int(br.y[i])] += w
+		total += w
+	}
+	for c := range sw {
+		sw[c] = math.Log(max(sw[c]/total, probClip))
+	}
+	return sw
+}
+
+// softmax turns raw scores into probabilities in place; it subtracts the largest
+// score first, so no exponential overflows.
+func softmax(v []float64) {
+	top := v[0]
+	for _, x := range v[1:] {
+		top = max(top, x)
+	}
+	sum := 0.0
+	for k, x := range v {
+		v[k] = math.Exp(x - top)
+		sum += v[k]
+	}
+	for k := range v {
+		v[k] /= sum
+	}
+}
+
+// quantile is the weighted α-quantile of y − F over rows (F = 0 when score is nil): the
+// least value at which the sorted rows' cumulative weight reaches α of their total.
+func (br *boostRun) quantile(rows []int32, alpha float64, score []float64) float64 {
+	d := br.fr.d
+	type rw struct{ r, w float64 }
+	v := make([]rw, len(rows))
+	total := 0.0
+	for k, i := range rows {
+		r := br.y[i]
+		if score != nil {
+			r -= score[i]
+		}
+		v[k] = rw{r, d.weight(int(i))}
+		total += v[k].w
+	}
+	slices.SortFunc(v, func(a, b rw) int { return cmp.Compare(a.r, b.r) })
+	cum := 0.0
+	for _, e := range v {
+		cum += e.w
+		if cum >= alpha*total {
+			return e.r
+		}
+	}
+	return v[len(v)-1].r
+}
+
+// huberDelta is the huberAlpha quantile of |y − F| over the training rows.
+func (br *boostRun) huberDelta() float64 {
+	d := br.fr.d
+	type rw struct{ r, w float64 }
+	v := make([]rw, len(br.train))
+	total := 0.0
+	for k, i := range br.train {
+		v[k] = rw{math.Abs(br.y[i] - br.score[i]), d.weight(int(i))}
+		total += v[k].w
+	}
+	slices.SortFunc(v, func(a, b rw) int { return cmp.Compare(a.r, b.r) })
+	cum := 0.0
+	for _, e := range v {
+		cum += e.w
+		if cum >= huberAlpha*total {
+			return e.r
+		}
+	}
+	return v[len(v)-1].r
+}
+
+// refit replaces the Newton values of a fresh tree's leaves, for the losses whose
+// gradient is a sign or clipped (Friedman 2001 §4.2–4.4): absolute takes the leaf's
+// weighted median residual y − F, quantile its α-quantile, huber its median r̃ plus the
+// weighted mean of sign(r − r̃)·min(δ, |r − r̃|). Leaf penalties do not apply to these
+// values; inner nodes keep their Newton values.
+func (br *boostRun) refit(t *Tree, g *grower) {
+	switch br.loss {
+	case LossAbsolute, LossQuantile, LossHuber:
+	default:
+		return
+	}
+	d := br.fr.d
+	for _, lr := range g.leafRows {
+		rows := g.rows[lr.start:lr.end]
+		if len(rows) == 0 {
+			continue
+		}
+		var v float64
+		switch br.loss {
+		case LossAbsolute:
+			v = br.quantile(rows, 0.5, br.score)
+		case LossQuantile:
+			v = br.quantile(rows, br.alpha, br.score)
+		case LossHuber:
+			med := br.quantile(rows, 0.5, br.score)
+			sw, s := 0.0, 0.0
+			for _, i := range rows {
+				w := d.weight(int(i))
+				dr := br.y[i] - br.score[i] - med
+				sw += w
+				s += w * math.Copysign(min(br.delta, math.Abs(dr)), dr)
+			}
+			v = med + s/sw
+		}
+		t.Value[lr.node] = v
+	}
 }
 
 // gradients writes each training row's Newton target −g/h into the grower's target and
@@ -198,18 +400,63 @@ func (br *boostRun) initScore() float64 {
 func (br *boostRun) gradients() {
 	d, yreg := br.fr.d, br.fr.set.yreg
 	n := len(br.train)
+	if br.loss == LossHuber {
+		br.delta = br.huberDelta()
+	}
+	if K := br.K; K > 1 {
+		parallelFor((n+boostBlock-1)/boostBlock, br.threads, func(k int) {
+			pr := make([]float64, K)
+			for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
+				copy(pr, br.score[int(i)*K:int(i+1)*K])
+				softmax(pr)
+				w, yc := d.weight(int(i)), int(br.y[i])
+				for c, pc := range pr {
+					h := max(pc*(1-pc), hessianFloor)
+					t := -pc
+					if c == yc {
+						t = 1 - pc
+					}
+					br.mg[int(i)*K+c], br.mh[int(i)*K+c] = t/h, w*h
+				}
+			}
+		})
+		return
+	}
 	parallelFor((n+boostBlock-1)/boostBlock, br.threads, func(k int) {
 		for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
 			f, y := br.score[i], br.y[i]
-			if br.loss == LossLogistic {
+			w := d.weight(int(i))
+			switch br.loss {
+			case LossLogistic:
 				pr := logisticLink(f)
 				h := max(pr*(1-pr), hessianFloor)
 				yreg[i] = (y - pr) / h
-				br.hw[i] = d.weight(int(i)) * h
+				br.hw[i] = w * h
+				continue
+			case LossPoisson:
+				mu := math.Exp(min(f, poissonMaxScore))
+				h := max(mu, hessianFloor)
+				yreg[i] = (y - mu) / h
+				br.hw[i] = w * h
 				continue
 			}
-			yreg[i] = y - f
-			br.hw[i] = d.weight(int(i))
+			r := y - f
+			switch br.loss {
+			case LossAbsolute:
+				r = sign(r)
+			case LossQuantile:
+				if r > 0 {
+					r = br.alpha
+				} else if r < 0 {
+					r = br.alpha - 1
+				}
+			case LossHuber:
+				if math.Abs(r) > br.delta {
+					r = br.delta * sign(r)
+				}
+			}
+			yreg[i] = r
+			br.hw[i] = w
 		}
 	})
 }
@@ -239,11 +486,12 @@ func (br *boostRun) subsample(frac float64, rng *rand.Rand, pick []bool) []bool 
 // grew on take their leaf from the grower's partition (their bins lead to the same leaf
 // as their values); the others (held out, or not drawn this round) walk the tree over
 // their values as prediction does.
-func (br *boostRun) update(t *Tree, g *grower, pick []bool) {
+func (br *boostRun) update(t *Tree, g *grower, pick []bool, c int) {
+	K := br.K
 	for _, lr := range g.leafRows {
 		v := t.Value[lr.node]
 		for _, r := range g.rows[lr.start:lr.end] {
-			br.score[r] += v
+			br.score[int(r)*K+c] += v
 		}
 	}
 	var rest []int32
@@ -265,7 +513,7 @@ func (br *boostRun) update(t *Tree, g *grower, pick []bool) {
 		leaves := make([]int32, hi-lo)
 		t.LeafBatch(block, F, leaves)
 		for j, leaf := range leaves {
-			br.score[rest[lo+j]] += t.Value[leaf]
+			br.score[int(rest[lo+j])*K+c] += t.Value[leaf]
 		}
 	})
 }
@@ -282,16 +530,19 @@ func (br *boostRun) meanLoss(rows []int32) float64 {
 		sw, sl := 0.0, 0.0
 		for _, i := range rows[k*boostBlock : min(n, (k+1)*boostBlock)] {
 			w := d.weight(int(i))
-			f, y := br.score[i], br.y[i]
-			var l float64
-			if br.loss == LossLogistic {
-				// log(1 + e^F) − yF, written to stay finite for large |F|.
-				l = max(f, 0) + math.Log1p(math.Exp(-math.Abs(f))) - y*f
-			} else {
-				l = (y - f) * (y - f)
-			}
 			sw += w
-			sl += w * l
+			if K := br.K; K > 1 {
+				// log Σ exp(F) − F_y, from the largest score for stability.
+				f := br.score[int(i)*K : int(i+1)*K]
+				top := slices.Max(f)
+				s := 0.0
+				for _, x := range f {
+					s += math.Exp(x - top)
+				}
+				sl += w * (top + math.Log(s) - f[int(br.y[i])])
+				continue
+			}
+			sl += w * br.rowLoss(br.y[i], br.score[i])
 		}
 		sums[2*k], sums[2*k+1] = sw, sl
 	})
@@ -303,22 +554,71 @@ func (br *boostRun) meanLoss(rows []int32) float64 {
 	return sl / sw
 }
 
+// rowLoss is one row's loss at raw score f: squared error, log loss, absolute error,
+// Huber loss at the first round's δ, pinball loss, or Poisson deviance.
+func (br *boostRun) rowLoss(y, f float64) float64 {
+	r := y - f
+	switch br.loss {
+	case LossLogistic:
+		// log(1 + e^F) − yF, written to stay finite for large |F|.
+		return max(f, 0) + math.Log1p(math.Exp(-math.Abs(f))) - y*f
+	case LossAbsolute:
+		return math.Abs(r)
+	case LossHuber:
+		if a := math.Abs(r); a > br.delta0 {
+			return br.delta0 * (a - br.delta0/2)
+		}
+		return r * r / 2
+	case LossQuantile:
+		if r >= 0 {
+			return br.alpha * r
+		}
+		return (br.alpha - 1) * r
+	case LossPoisson:
+		// 2(y log(y/μ) − (y − μ)) with log μ = F, y log y = 0 at y = 0.
+		f = min(f, poissonMaxScore)
+		l := math.Exp(f) - y
+		if y > 0 {
+			l += y * (math.Log(y) - f)
+		}
+		return 2 * l
+	}
+	return r * r
+}
+
+// sign is −1, 0 or 1.
+func sign(x float64) float64 {
+	switch {
+	case x > 0:
+		return 1
+	case x < 0:
+		return -1
+	}
+	return 0
+}
+
 // boostLoss resolves the loss for a task and checks it fits the target.
 func boostLoss(p Params, task Task, classes int) (Loss, error) {
 	loss := p.Loss
 	if loss == "" {
-		loss = LossSquared
-		if task == Classification {
+		switch {
+		case task == Regression:
+			loss = LossSquared
+		case classes == 2:
 			loss = LossLogistic
+		default:
+			loss = LossMultinomial
 		}
 	}
 	switch {
-	case task == Regression && loss != LossSquared:
-		return "", fmt.Errorf("forest: loss %q: regression takes %q", loss, LossSquared)
-	case task == Classification && loss != LossLogistic:
-		return "", fmt.Errorf("forest: loss %q: classification takes %q", loss, LossLogistic)
+	case task == Regression && !regressionLoss(loss):
+		return "", fmt.Errorf("forest: loss %q: regression takes %s", loss, regressionLosses)
+	case task == Classification && loss != LossLogistic && loss != LossMultinomial:
+		return "", fmt.Errorf("forest: loss %q: classification takes %q or %q", loss, LossLogistic, LossMultinomial)
 	case loss == LossLogistic && classes != 2:
-		return "", fmt.Errorf("forest: loss %q: the target has %d classes, want 2", loss, classes)
+		return "", fmt.Errorf("forest: loss %q: the target has %d classes, want 2 (loss %q takes more)", loss, classes, LossMultinomial)
+	case loss == LossMultinomial && classes < 3:
+		return "", fmt.Errorf("forest: loss %q: the target has %d classes, want 3 or more (loss %q takes 2)", loss, classes, LossLogistic)
 	}
 	return loss, nil
 }

@@ -60,3 +60,41 @@ func TestDecodeVersion1(t *testing.T) {
 		t.Errorf("version 1 model carries boosting fields: %+v", m1.Params)
 	}
 }
+
+// A model written in format version 2 (boosting, before the quantile and exposure
+// controls) still decodes, and re-encodes in today's version to the same model, with
+// those controls unset. testdata/models/breast-cancer-boosting.v2.cpsm is the
+// "breast-cancer-boosting" fuzz seed as the version-2 encoder wrote it (commit c094de8).
+func TestDecodeVersion2(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/breast-cancer-boosting.v2.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 2 {
+		t.Fatalf("fixture is format version %d, want 2", old[4])
+	}
+	m2, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 2: %v", err)
+	}
+	if m2.Boost == nil || m2.Boost.Loss != LossLogistic || m2.Params.Quantile != 0 || m2.Params.Exposure != "" {
+		t.Fatalf("version 2 model: boost %+v, quantile %v, exposure %q", m2.Boost, m2.Params.Quantile, m2.Params.Exposure)
+	}
+	b, err := m2.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion {
+		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
+	}
+	// Today's encoding adds 9 bytes to the params section: the quantile float and an
+	// empty exposure string.
+	if len(b) != len(old)+9 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9)
+	}
+	m3, err := Decode(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	encSameModel(t, m2, m3)
+}

@@ -42,6 +42,7 @@ type Dataset struct {
 	names    map[string]int
 	target   column
 	weights  []float64
+	exposure column // Numeric, or unset (kind 0)
 }
 
 type column struct {
@@ -155,6 +156,23 @@ func (d *Dataset) SetWeights(w []float64) error {
 	return nil
 }
 
+// SetExposure sets the exposure of each row (time at risk, policy years, …) for the
+// Poisson loss: log(exposure) is an offset added to the raw score, so the trees model
+// the rate per unit of exposure (McCullagh & Nelder 1989, §6.2.3). Every value must be
+// finite and above 0. The model stores the column's name, and Params.Exposure names it.
+func (d *Dataset) SetExposure(name string, v []float64) error {
+	if len(v) != d.rows {
+		return fmt.Errorf("%w: exposure %q has %d rows, want %d", ErrData, name, len(v), d.rows)
+	}
+	for i, x := range v {
+		if !(x > 0) || math.IsInf(x, 0) {
+			return fmt.Errorf("%w: exposure %q row %d: %g; want a finite number above 0", ErrData, name, i, x)
+		}
+	}
+	d.exposure = column{name: name, kind: Numeric, num: v}
+	return nil
+}
+
 // weight is row i's weight.
 func (d *Dataset) weight(i int) float64 {
 	if d.weights == nil {
@@ -176,6 +194,11 @@ func (d *Dataset) check(task Task) error {
 	}
 	if _, clash := d.names[d.target.name]; clash {
 		return fmt.Errorf("%w: target %q is also a feature", ErrData, d.target.name)
+	}
+	if e := d.exposure.name; d.exposure.kind != 0 {
+		if _, clash := d.names[e]; clash || e == d.target.name || e == "" {
+			return fmt.Errorf("%w: exposure %q is empty, a feature or the target", ErrData, e)
+		}
 	}
 	if task == Classification && d.target.kind != Categorical {
 		return fmt.Errorf("%w: target %q is numeric; classification needs classes", ErrData, d.target.name)

@@ -28,10 +28,12 @@
 //   - out-of-bag (OOB): the rows a tree did not draw; scoring each row with only those
 //     trees estimates error on new data. Bagged methods only.
 //   - round: one boosting step, one tree fitted to the loss's gradient at the current
-//     raw scores; raw score: the initial score plus the trees' values, before the link
-//     (identity, or the logistic function for class probabilities).
+//     raw scores (one tree per class for the multinomial loss); raw score: the initial
+//     score plus the trees' values, before the link (identity, exp for Poisson means,
+//     the logistic function or the softmax for class probabilities).
 //   - gradient g, hessian h: the first and second derivative of a row's loss in its raw
-//     score; a boosted leaf's value is −Σg/(Σh + λ), shrunk by the learning rate.
+//     score; a boosted leaf's value is −Σg/(Σh + λ), shrunk by the learning rate, or for
+//     absolute, Huber and quantile loss a quantile of the leaf's residuals.
 //   - holdout: rows kept out of boosting to choose the number of rounds.
 //
 // # What it does not do

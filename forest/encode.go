@@ -1,13 +1,13 @@
 package forest
 
-// The binary model encoding, format version 2. It holds everything scoring and explaining
+// The binary model encoding, format version 3. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
-// Decode also reads version 1 (before boosting: no section 7, no boosting controls), so
-// models stored by earlier builds keep scoring.
+// Decode also reads version 1 (before boosting: no section 7, no boosting controls) and
+// version 2 (no quantile control), so models stored by earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 2
+//	4       version   uint16, 3
 //	6       sections  the seven below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
@@ -27,7 +27,8 @@ package forest
 //	                 features_per_split float, row_fraction float, with_replacement byte
 //	                 (0 or 1), bins varint, seed uvarint, permutation_rows varint,
 //	                 loss string, learning_rate float, leaf_penalty float,
-//	                 holdout_fraction float, patience varint
+//	                 holdout_fraction float, patience varint, quantile float and
+//	                 exposure string (since 3)
 //	3    features    count uvarint, then per feature: name string, kind byte (1 numeric,
 //	                 2 categorical), levels list of string, bin upper edges list of float,
 //	                 level bins list of uint16, bin counts list of float
@@ -48,7 +49,9 @@ package forest
 //	6    importance  impurity, permutation, permutation std: three lists of float
 //	7    boost       empty when the model is not boosted; else loss string, initial
 //	                 score list of float, rounds uvarint, best round uvarint, training
-//	                 loss list of float, holdout loss list of float
+//	                 loss list of float, holdout loss list of float (multinomial: one
+//	                 initial score per class, and the trees round-major, tree t adding
+//	                 to class t mod K)
 //
 // A tree's width (the number of classes, or 1 for boosted and regression trees) and each
 // binning's kind are implied, not
@@ -66,7 +69,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 2
+	encodingVersion = 3
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -282,6 +285,8 @@ func (w *encWriter) params(m *Model) {
 	w.float(p.LeafPenalty)
 	w.float(p.HoldoutFraction)
 	w.varint(int64(p.Patience))
+	w.float(p.Quantile)
+	w.str(p.Exposure)
 }
 
 func (w *encWriter) features(m *Model) {
@@ -573,6 +578,11 @@ func (r *encReader) params(m *Model) {
 	p.LeafPenalty = r.float("leaf_penalty")
 	p.HoldoutFraction = r.float("holdout_fraction")
 	p.Patience = r.signed("patience")
+	if r.version < 3 {
+		return // version 2 predates the quantile loss
+	}
+	p.Quantile = r.float("quantile")
+	p.Exposure = r.str("exposure")
 }
 
 func (r *encReader) features(m *Model) {
@@ -836,25 +846,48 @@ func (m *Model) checkBoost() error {
 		return fmt.Errorf("method %q with boosting record %v", m.Method, b != nil)
 	}
 	if b == nil {
+		if m.Params.Quantile != 0 || m.Params.Exposure != "" {
+			return fmt.Errorf("quantile %v, exposure %q without boosting", m.Params.Quantile, m.Params.Exposure)
+		}
 		return nil
 	}
 	if m.OOB != nil {
 		return errors.New("a boosted model with out-of-bag results")
 	}
 	switch {
-	case b.Loss == LossSquared && m.Task == Regression:
+	case regressionLoss(b.Loss) && m.Task == Regression:
 	case b.Loss == LossLogistic && m.Task == Classification && len(m.Classes) == 2:
+	case b.Loss == LossMultinomial && m.Task == Classification && len(m.Classes) >= 3:
 	default:
 		return fmt.Errorf("loss %q for %s with %d classes", b.Loss, m.Task, len(m.Classes))
+	}
+	if q := m.Params.Quantile; (b.Loss == LossQuantile) != (q > 0 && q < 1) || (b.Loss != LossQuantile && q != 0) {
+		return fmt.Errorf("quantile %v with loss %q", q, b.Loss)
+	}
+	if e := m.Params.Exposure; e != "" {
+		if b.Loss != LossPoisson {
+			return fmt.Errorf("exposure %q with loss %q", e, b.Loss)
+		}
+		for i := range m.Features {
+			if m.Features[i].Name == e {
+				return fmt.Errorf("exposure %q is also feature %d", e, i)
+			}
+		}
 	}
 	if m.Params.Loss != b.Loss {
 		return fmt.Errorf("params say loss %q, the model has %q", m.Params.Loss, b.Loss)
 	}
-	if len(b.InitScore) != 1 {
-		return fmt.Errorf("%d initial scores; want 1", len(b.InitScore))
+	// Multinomial trees are round-major, tree t adding to class t mod K, so K initial
+	// scores and K trees per kept round fix every tree's output.
+	K := 1
+	if b.Loss == LossMultinomial {
+		K = len(m.Classes)
 	}
-	if b.BestRound < 1 || b.BestRound > b.Rounds || b.BestRound != len(m.Trees) {
-		return fmt.Errorf("best round %d of %d rounds with %d trees", b.BestRound, b.Rounds, len(m.Trees))
+	if len(b.InitScore) != K {
+		return fmt.Errorf("%d initial scores; want %d", len(b.InitScore), K)
+	}
+	if b.BestRound < 1 || b.BestRound > b.Rounds || b.BestRound*K != len(m.Trees) {
+		return fmt.Errorf("best round %d of %d rounds with %d trees, %d per round", b.BestRound, b.Rounds, len(m.Trees), K)
 	}
 	if len(b.TrainLoss) != b.Rounds || (b.HoldoutLoss != nil && len(b.HoldoutLoss) != b.Rounds) {
 		return fmt.Errorf("%d training and %d holdout losses for %d rounds", len(b.TrainLoss), len(b.HoldoutLoss), b.Rounds)

@@ -38,15 +38,18 @@ type Model struct {
 // and the training curve.
 type Boost struct {
 	Loss Loss
-	// InitScore is the raw score before any tree: the weighted mean target (squared) or
-	// the log-odds of the weighted positive rate (logistic). One number per tree output.
+	// InitScore is the raw score before any tree: the weighted mean target (squared),
+	// median (absolute, huber) or quantile (quantile), the log of the mean (poisson),
+	// the log-odds of the weighted positive rate (logistic), or the log of each class's
+	// weighted share (multinomial: one per class; tree t adds to class t mod K).
 	InitScore []float64
 	// Rounds is how many rounds were trained; BestRound how many were kept (their trees
-	// are Model.Trees): all of them without early stopping, else the best holdout round.
+	// are Model.Trees, K per round for multinomial): all of them without early stopping,
+	// else the best holdout round.
 	Rounds, BestRound int
-	// TrainLoss and HoldoutLoss hold the loss after each round: mean squared error
-	// (squared) or mean log loss (logistic), weighted. HoldoutLoss is nil without a
-	// holdout.
+	// TrainLoss and HoldoutLoss hold the weighted mean loss after each round: squared
+	// error, log loss, absolute error, Huber loss (at the first round's δ), pinball loss
+	// or Poisson deviance. HoldoutLoss is nil without a holdout.
 	TrainLoss, HoldoutLoss []float64
 }
 
@@ -62,12 +65,16 @@ func (m *Model) treeWidth() int {
 // logisticLink is the logistic link 1/(1+e^−F); it saturates to 0 or 1 without overflow.
 func logisticLink(f float64) float64 { return 1 / (1 + math.Exp(-f)) }
 
-// link turns a boosted raw score into dst: the value (squared), or the class
-// probabilities [1−p, p] (logistic).
+// link turns a boosted raw score into dst: the class probabilities [1−p, p]
+// (logistic), the mean e^F (poisson), or the value itself.
 func (b *Boost) link(raw float64, dst []float64) {
-	if b.Loss == LossLogistic {
+	switch b.Loss {
+	case LossLogistic:
 		p := logisticLink(raw)
 		dst[0], dst[1] = 1-p, p
+		return
+	case LossPoisson:
+		dst[0] = math.Exp(raw)
 		return
 	}
 	dst[0] = raw
@@ -89,6 +96,15 @@ func (m *Model) Width() int {
 func (m *Model) PredictRow(row, dst []float64) []float64 {
 	dst = dst[:m.Width()]
 	if b := m.Boost; b != nil {
+		if K := len(b.InitScore); K > 1 {
+			// Multinomial: tree t adds to class t mod K; then the softmax.
+			copy(dst, b.InitScore)
+			for ti, t := range m.Trees {
+				dst[ti%K] += t.Value[t.Leaf(row)]
+			}
+			softmax(dst)
+			return dst
+		}
 		raw := b.InitScore[0]
 		for _, t := range m.Trees {
 			raw += t.Value[t.Leaf(row)]
@@ -175,6 +191,24 @@ func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int3
 	W := m.Width()
 	n := len(rows) / p
 	leaves = leaves[:n]
+	if b := m.Boost; b != nil && n > 0 && len(b.InitScore) > 1 {
+		// Multinomial: each row's K raw scores gather in its output, tree t adding to
+		// class t mod K in tree order as in PredictRow, then pass through the softmax.
+		for i := range n {
+			copy(out[i*W:(i+1)*W], b.InitScore)
+		}
+		for ti, t := range m.Trees {
+			t.LeafBatch(rows, p, leaves)
+			c := ti % W
+			for i, leaf := range leaves {
+				out[i*W+c] += t.Value[leaf]
+			}
+		}
+		for i := range n {
+			softmax(out[i*W : (i+1)*W])
+		}
+		return
+	}
 	if b := m.Boost; b != nil && n > 0 {
 		// Raw scores gather in the last slot of each row's output, in tree order as in
 		// PredictRow, then pass through the link.

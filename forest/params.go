@@ -32,7 +32,36 @@ const (
 	LossSquared Loss = "squared"
 	// LossLogistic is the binomial log loss with F the log-odds of the second class.
 	LossLogistic Loss = "logistic"
+	// LossMultinomial is the multinomial log loss with a softmax link over K ≥ 3 raw
+	// scores, one per class; each round grows one tree per class (Friedman 2001 §4.6),
+	// with Newton leaves on h = p(1 − p). Model.Trees are round-major: tree t adds to
+	// class t mod K.
+	LossMultinomial Loss = "multinomial"
+	// LossAbsolute is |y − F| (least absolute deviation, Friedman 2001 §4.2): each tree
+	// is grown on the gradient's sign, then each leaf takes the weighted median of its
+	// rows' residuals.
+	LossAbsolute Loss = "absolute"
+	// LossHuber is Huber's (1964) loss: squared within δ of the target, linear beyond.
+	// As in Friedman 2001 §4.4, δ is each round's 0.9 quantile of |y − F| over the
+	// training rows, and a leaf takes its median residual plus the mean clipped
+	// deviation from it.
+	LossHuber Loss = "huber"
+	// LossQuantile is the pinball loss of quantile regression (Koenker & Bassett 1978)
+	// at level Params.Quantile: each leaf takes that quantile of its rows' residuals.
+	LossQuantile Loss = "quantile"
+	// LossPoisson is the Poisson deviance with a log link (F = log of the mean), for
+	// counts ≥ 0; Newton leaves with g = e^F − y and h = e^F.
+	LossPoisson Loss = "poisson"
 )
+
+// regressionLoss reports whether a loss fits a numeric target.
+func regressionLoss(l Loss) bool {
+	switch l {
+	case LossSquared, LossAbsolute, LossHuber, LossQuantile, LossPoisson:
+		return true
+	}
+	return false
+}
 
 // Task is what the target asks for.
 type Task string
@@ -72,6 +101,8 @@ const (
 	DefaultLearningRate = 0.1
 	DefaultBoostDepth   = 6
 	DefaultPatience     = 10
+	// DefaultQuantile is the quantile loss's level: the upper edge of an 80 % band.
+	DefaultQuantile = 0.9
 
 	MaxBins = 65535 // bin codes are uint16 at most, with one code kept for missing values
 )
@@ -113,8 +144,8 @@ type Params struct {
 	// importance; negative turns permutation importance off.
 	PermutationRows int
 
-	// Loss is the boosting loss; empty takes squared for regression and logistic for
-	// classification.
+	// Loss is the boosting loss; empty takes squared for regression, logistic for two
+	// classes and multinomial for more.
 	Loss Loss
 	// LearningRate shrinks every boosted tree's values (boosting only), in (0, 1].
 	LearningRate float64
@@ -126,6 +157,13 @@ type Params struct {
 	HoldoutFraction float64
 	// Patience is how many rounds without a better holdout loss end boosting.
 	Patience int
+	// Quantile is the level α of LossQuantile, in (0, 1); 0 takes DefaultQuantile. Other
+	// losses leave it 0.
+	Quantile float64
+	// Exposure names the data set's exposure column (Dataset.SetExposure); Train sets it,
+	// and only LossPoisson takes one. Such a model predicts the rate per unit of
+	// exposure: multiply by a row's exposure for its mean count.
+	Exposure string
 
 	// Progress, when set, is called after each finished tree with the number done and the
 	// total. Calls come from one goroutine at a time.
@@ -210,18 +248,32 @@ func (p Params) validateBoosting() error {
 		if p.Loss != "" {
 			return fmt.Errorf("forest: loss %q: only method %q takes a loss", p.Loss, MethodBoosting)
 		}
+		if p.Quantile != 0 {
+			return fmt.Errorf("forest: quantile %g: only loss %q takes a quantile", p.Quantile, LossQuantile)
+		}
+		if p.Exposure != "" {
+			return fmt.Errorf("forest: exposure %q: only loss %q takes an exposure", p.Exposure, LossPoisson)
+		}
 		return nil
 	}
-	switch p.Loss {
-	case "", LossSquared, LossLogistic:
-	default:
-		return fmt.Errorf("forest: loss %q: want %q or %q", p.Loss, LossSquared, LossLogistic)
+	if p.Exposure != "" && p.Loss != LossPoisson {
+		return fmt.Errorf("forest: exposure %q: only loss %q takes an exposure", p.Exposure, LossPoisson)
+	}
+	if p.Loss != "" && p.Loss != LossLogistic && p.Loss != LossMultinomial && !regressionLoss(p.Loss) {
+		return fmt.Errorf("forest: loss %q: want %q, %q, %q, %q, %q, %q or %q", p.Loss,
+			LossSquared, LossAbsolute, LossHuber, LossQuantile, LossPoisson, LossLogistic, LossMultinomial)
 	}
 	switch {
-	case p.Task == Regression && p.Loss == LossLogistic:
-		return fmt.Errorf("forest: loss %q: regression takes %q", p.Loss, LossSquared)
-	case p.Task == Classification && p.Loss == LossSquared:
-		return fmt.Errorf("forest: loss %q: classification takes %q", p.Loss, LossLogistic)
+	case p.Task == Regression && p.Loss != "" && !regressionLoss(p.Loss):
+		return fmt.Errorf("forest: loss %q: regression takes %s", p.Loss, regressionLosses)
+	case p.Task == Classification && regressionLoss(p.Loss):
+		return fmt.Errorf("forest: loss %q: classification takes %q or %q", p.Loss, LossLogistic, LossMultinomial)
+	}
+	if p.Quantile != 0 && p.Loss != LossQuantile {
+		return fmt.Errorf("forest: quantile %g: only loss %q takes a quantile", p.Quantile, LossQuantile)
+	}
+	if !(p.Quantile >= 0 && p.Quantile < 1) {
+		return fmt.Errorf("forest: quantile %g: want a number in (0, 1)", p.Quantile)
 	}
 	if !(p.LearningRate > 0 && p.LearningRate <= 1) {
 		return fmt.Errorf("forest: learning_rate %g: want a number in (0, 1]", p.LearningRate)
@@ -240,6 +292,9 @@ func (p Params) validateBoosting() error {
 	}
 	return nil
 }
+
+// regressionLosses lists the losses a numeric target takes, for messages.
+const regressionLosses = `"squared", "absolute", "huber", "quantile" or "poisson"`
 
 // featuresPerSplit resolves FeaturesPerSplit against p features.
 func (p Params) featuresPerSplit(task Task, features int) (int, error) {

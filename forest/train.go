@@ -46,6 +46,18 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 			return nil, err
 		}
 		p.Loss = loss
+		if loss == LossQuantile && p.Quantile == 0 {
+			p.Quantile = DefaultQuantile
+		}
+	}
+	if e := d.exposure.name; d.exposure.kind != 0 || p.Exposure != "" {
+		switch {
+		case p.Exposure != "" && p.Exposure != e:
+			return nil, fmt.Errorf("forest: exposure %q: the data set's exposure is %q", p.Exposure, e)
+		case loss != LossPoisson:
+			return nil, fmt.Errorf("forest: exposure %q: only loss %q takes an exposure", e, LossPoisson)
+		}
+		p.Exposure = e
 	}
 	threads := p.Threads
 	if threads == 0 {

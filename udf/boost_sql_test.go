@@ -4,6 +4,7 @@ import (
 	"database/sql"
 	"encoding/csv"
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"slices"
@@ -28,7 +29,13 @@ const (
 // DuckDB, with every column numeric and target the regression target.
 func bsRegressionCSV(t testing.TB, file, target string) *forest.Dataset {
 	t.Helper()
-	f, err := os.Open(filepath.Join("..", "testdata", file))
+	return bsRegressionCSVAt(t, filepath.Join("..", "testdata", file), target)
+}
+
+// bsRegressionCSVAt is bsRegressionCSV on a file at any path.
+func bsRegressionCSVAt(t testing.TB, file, target string) *forest.Dataset {
+	t.Helper()
+	f, err := os.Open(file)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -202,14 +209,14 @@ func TestBoostSQLCurveAndEarlyStopping(t *testing.T) {
 			t.Errorf("round %d holdout loss %v beats the kept round %d's %v", r+1, l, b.BestRound, best)
 		}
 	}
-	if row["oob_metric"] != holdoutMSE || row["trees"] != strconv.Itoa(b.BestRound) {
-		t.Errorf("summary %v: want %s over %d trees", row, holdoutMSE, b.BestRound)
+	if row["oob_metric"] != holdoutMetric[forest.LossSquared] || row["trees"] != strconv.Itoa(b.BestRound) {
+		t.Errorf("summary %v: want %s over %d trees", row, holdoutMetric[forest.LossSquared], b.BestRound)
 	}
 	if v, err := strconv.ParseFloat(row["oob_value"], 64); err != nil || v != best {
 		t.Errorf("summary oob_value %q, want %v", row["oob_value"], best)
 	}
 	sameBits(t, "copse_models oob_value", queryFloats(t, db, "SELECT oob_value FROM copse_models() WHERE name = 'es'"), []float64{best})
-	if e.OOBMetric != holdoutMSE {
+	if e.OOBMetric != holdoutMetric[forest.LossSquared] {
 		t.Errorf("catalog metric %q", e.OOBMetric)
 	}
 
@@ -246,7 +253,7 @@ func TestBoostSQLCurveAndEarlyStopping(t *testing.T) {
 	// Logistic with a holdout: log loss.
 	row = bsTrain(t, db, "lgh", bsCancer, "target := 'diagnosis', method := 'boosting', trees := 30, holdout_fraction := 0.2, seed := 4")
 	lgh, _ := trModel(t, h, "lgh")
-	if row["oob_metric"] != holdoutLogLoss {
+	if row["oob_metric"] != holdoutMetric[forest.LossLogistic] {
 		t.Errorf("logistic holdout: summary %v", row)
 	}
 	sameBits(t, "logistic holdout", queryFloats(t, db, "SELECT oob_value FROM copse_train('lgh', '"+bsCancer+"', target := 'diagnosis', "+
@@ -327,7 +334,9 @@ func TestBoostSQLBadOptions(t *testing.T) {
 		{"CALL copse_train('m', " + ok + ", with_replacement := true)", []string{"with_replacement", "'boosting'"}},
 		{"CALL copse_train('m', " + ok + ", with_replacement := false)", []string{"with_replacement", "'boosting'"}},
 		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', impurity := 'gini')", []string{"impurity", "'boosting'"}},
-		{"CALL copse_train('m', 'iris', target := 'species', method := 'boosting')", []string{`"m"`, "logistic", "3 classes"}},
+		{"CALL copse_train('m', 'iris', target := 'species', method := 'boosting', loss := 'logistic')", []string{`"m"`, "logistic", "3 classes", "multinomial"}},
+		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', loss := 'multinomial')", []string{`"m"`, `loss "multinomial"`, "2 classes", "logistic"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'multinomial')", []string{"loss 'multinomial'", `target "y"`, "regression"}},
 		{"CALL copse_train('m', 'fr', target := 'y', loss := 'squared')", []string{"loss", "'forest'", "'boosting'"}},
 		{"CALL copse_train('m', 'fr', target := 'y', method := 'bagging', learning_rate := 0.1)", []string{"learning_rate", "'bagging'", "'boosting'"}},
 		{"CALL copse_train('m', 'fr', target := 'y', method := 'tree', leaf_penalty := 1)", []string{"leaf_penalty", "'tree'", "'boosting'"}},
@@ -348,4 +357,271 @@ func TestBoostSQLBadOptions(t *testing.T) {
 	if got := trRows(t, db, "SELECT method, trees FROM copse_models() WHERE name = 'nulls'"); len(got) != 1 || !strings.EqualFold(got[0][0], "boosting") {
 		t.Errorf("nulls: %v", got)
 	}
+}
+
+// bsCountsCSV writes simulated counts with the log-linear rate log μ = 0.3 + x₁ − 0.5x₂
+// to a CSV file and returns its path.
+func bsCountsCSV(t testing.TB) string {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(21, 22))
+	var b strings.Builder
+	b.WriteString("x1,x2,y\n")
+	for range 800 {
+		x1, x2 := rng.Float64(), rng.Float64()
+		l, k, p := math.Exp(-math.Exp(0.3+x1-0.5*x2)), 0, 1.0
+		for p *= rng.Float64(); p > l; p *= rng.Float64() {
+			k++
+		}
+		b.WriteString(strconv.FormatFloat(x1, 'g', -1, 64) + "," + strconv.FormatFloat(x2, 'g', -1, 64) + "," + strconv.Itoa(k) + "\n")
+	}
+	path := filepath.Join(t.TempDir(), "counts.csv")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return path
+}
+
+// The losses absolute, huber, quantile and poisson reach the engine: the model trained
+// from SQL encodes to forest.Train's bytes with the same Params, the summary names the
+// loss's holdout metric, and copse_score and copse_predict equal the engine's Predict bit
+// for bit (for poisson, the mean count e^F).
+func TestBoostSQLLosses(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	fr := bsRegressionCSV(t, "friedman1_train.csv", "y")
+	mustExec(t, db, "CREATE TABLE fr_test AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/friedman1_test.csv')")
+	for _, tc := range []struct {
+		name, opts, metric string
+		p                  func(p *forest.Params)
+	}{
+		{"abs", "loss := 'absolute', trees := 20, max_depth := 3, holdout_fraction := 0.2, seed := 3", "holdout_mae",
+			func(p *forest.Params) {
+				p.Loss, p.Trees, p.MaxDepth, p.HoldoutFraction, p.Seed = forest.LossAbsolute, 20, 3, 0.2, 3
+			}},
+		{"hub", "loss := 'HUBER', trees := 20, row_fraction := 0.7, holdout_fraction := 0.2, seed := 4", "holdout_huber",
+			func(p *forest.Params) {
+				p.Loss, p.Trees, p.RowFraction, p.HoldoutFraction, p.Seed = forest.LossHuber, 20, 0.7, 0.2, 4
+			}},
+		{"q75", "loss := 'quantile', quantile := 0.75, trees := 20, holdout_fraction := 0.2", "holdout_pinball",
+			func(p *forest.Params) {
+				p.Loss, p.Quantile, p.Trees, p.HoldoutFraction = forest.LossQuantile, 0.75, 20, 0.2
+			}},
+		{"q90", "loss := 'quantile', trees := 10", "NULL",
+			func(p *forest.Params) { p.Loss, p.Quantile, p.Trees = forest.LossQuantile, 0.9, 10 }},
+	} {
+		row := bsTrain(t, db, tc.name, bsFriedman, "target := 'y', method := 'boosting', "+tc.opts)
+		if row["task"] != "regression" || row["oob_metric"] != tc.metric {
+			t.Errorf("%s: summary %v, want metric %s", tc.name, row, tc.metric)
+		}
+		p := forest.DefaultParams(forest.MethodBoosting)
+		tc.p(&p)
+		trSameModel(t, h, tc.name, fr, p)
+		m, _ := trModel(t, h, tc.name)
+		want := enginePredict(t, db, m, "SELECT * FROM fr_test ORDER BY id")
+		sameBits(t, tc.name+" copse_score", queryFloats(t, db, "SELECT copse_score('"+tc.name+"', x) FROM fr_test x ORDER BY id"), want)
+	}
+
+	path := bsCountsCSV(t)
+	mustExec(t, db, "CREATE TABLE counts AS SELECT row_number() OVER () AS id, * FROM read_csv('"+path+"')")
+	row := bsTrain(t, db, "pois", "counts", "target := 'y', method := 'boosting', loss := 'poisson', exclude := ['id'], "+
+		"trees := 30, max_depth := 3, holdout_fraction := 0.25, seed := 6")
+	if row["oob_metric"] != "holdout_poisson_deviance" {
+		t.Errorf("poisson: summary %v", row)
+	}
+	p := forest.DefaultParams(forest.MethodBoosting)
+	p.Loss, p.Trees, p.MaxDepth, p.HoldoutFraction, p.Seed = forest.LossPoisson, 30, 3, 0.25, 6
+	trSameModel(t, h, "pois", bsRegressionCSVAt(t, path, "y"), p)
+	m, _ := trModel(t, h, "pois")
+	want := enginePredict(t, db, m, "SELECT * FROM counts ORDER BY id")
+	sameBits(t, "poisson copse_score", queryFloats(t, db, "SELECT copse_score('pois', c) FROM counts c ORDER BY id"), want)
+	sameBits(t, "poisson copse_predict", queryFloats(t, db, "SELECT prediction FROM copse_predict('pois', 'counts') ORDER BY id"), want)
+	for i, v := range want {
+		if !(v > 0) {
+			t.Fatalf("row %d: mean count %v", i, v)
+		}
+	}
+}
+
+// The new losses' bad values name the option (or the target) and leave the catalog as
+// it was.
+func TestBoostSQLLossBadOptions(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	trExec(t, db, "CREATE TABLE fr AS SELECT * FROM read_csv('../testdata/friedman1_train.csv')")
+	trExec(t, db, "CREATE TABLE neg AS SELECT x1, x2, y - 100 AS y FROM fr")
+	trExec(t, db, "CREATE TABLE bc AS SELECT * FROM read_csv('../testdata/breast_cancer.csv')")
+	const ok = "'fr', target := 'y', method := 'boosting', trees := 5"
+	for _, tc := range []struct {
+		q    string
+		want []string
+	}{
+		{"CALL copse_train('m', " + ok + ", loss := 'quantile', quantile := 1)", []string{"quantile 1", "(0, 1)"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'quantile', quantile := 0)", []string{"quantile 0", "(0, 1)"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'quantile', quantile := -0.5)", []string{"quantile -0.5", "(0, 1)"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'quantile', quantile := 'nan'::DOUBLE)", []string{"quantile NaN", "finite"}},
+		{"CALL copse_train('m', " + ok + ", quantile := 0.5)", []string{"quantile", "loss := 'quantile'"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'absolute', quantile := 0.5)", []string{"quantile", "loss := 'quantile'"}},
+		{"CALL copse_train('m', 'fr', target := 'y', quantile := 0.5)", []string{"quantile", "'forest'", "'boosting'"}},
+		{"CALL copse_train('m', 'neg', target := 'y', method := 'boosting', loss := 'poisson')", []string{`"m"`, `loss "poisson"`, `target "y"`, "≥ 0"}},
+		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', loss := 'absolute')", []string{"loss 'absolute'", `target "diagnosis"`, "classification"}},
+		{"CALL copse_train('m', 'bc', target := 'diagnosis', method := 'boosting', loss := 'poisson')", []string{"loss 'poisson'", `target "diagnosis"`}},
+		{"CALL copse_train('m', " + ok + ", loss := 'gamma')", []string{`loss "gamma"`, "'absolute'", "'huber'", "'quantile'", "'poisson'"}},
+	} {
+		trWantErr(t, db, tc.q, tc.want...)
+	}
+	if got := trRows(t, db, "SELECT count(*) FROM copse_models() WHERE name = 'm'"); got[0][0] != "0" {
+		t.Errorf("model m saved: %v", got)
+	}
+	if jobs := h.Jobs(); len(jobs) != 0 {
+		t.Errorf("jobs left behind: %+v", jobs)
+	}
+}
+
+// bsExposureCSV writes counts drawn with mean years·exp(0.2 + x₁ − 0.5x₂), years in
+// [0.5, 3], to a CSV file; it returns the path and the columns as written.
+func bsExposureCSV(t testing.TB) (path string, x1, x2, years, y []float64) {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(23, 24))
+	var b strings.Builder
+	b.WriteString("x1,x2,years,y\n")
+	for range 800 {
+		a, c, e := rng.Float64(), rng.Float64(), 0.5+2.5*rng.Float64()
+		l, k, p := math.Exp(-e*math.Exp(0.2+a-0.5*c)), 0, 1.0
+		for p *= rng.Float64(); p > l; p *= rng.Float64() {
+			k++
+		}
+		x1, x2, years, y = append(x1, a), append(x2, c), append(years, e), append(y, float64(k))
+		for _, v := range []float64{a, c, e} {
+			b.WriteString(strconv.FormatFloat(v, 'g', -1, 64) + ",")
+		}
+		b.WriteString(strconv.Itoa(k) + "\n")
+	}
+	path = filepath.Join(t.TempDir(), "exposure.csv")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return path, x1, x2, years, y
+}
+
+// exposure := column is the Poisson offset: not a feature, stored in the model by name,
+// and read back from the scored row, whose prediction is the engine's rate times the
+// row's exposure; a NULL exposure scores NULL. Bad exposures name the option.
+func TestBoostSQLExposure(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	path, x1, x2, years, y := bsExposureCSV(t)
+	mustExec(t, db, "CREATE TABLE claims AS SELECT row_number() OVER () AS id, * FROM read_csv('"+path+"')")
+	row := bsTrain(t, db, "freq", "claims", "target := 'y', method := 'boosting', loss := 'poisson', exposure := 'Years', "+
+		"exclude := ['id'], trees := 30, max_depth := 3, seed := 2")
+	if row["features"] != "2" {
+		t.Errorf("summary %v: want 2 features (the exposure is not one)", row)
+	}
+	d := forest.NewDataset(len(y))
+	for _, err := range []error{d.AddNumeric("x1", x1), d.AddNumeric("x2", x2), d.SetRegressionTarget("y", y), d.SetExposure("years", years)} {
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	p := forest.DefaultParams(forest.MethodBoosting)
+	p.Loss, p.Trees, p.MaxDepth, p.Seed = forest.LossPoisson, 30, 3, 2
+	trSameModel(t, h, "freq", d, p)
+	m, _ := trModel(t, h, "freq")
+	if m.Params.Exposure != "years" {
+		t.Fatalf("exposure %q", m.Params.Exposure)
+	}
+	want := enginePredict(t, db, m, "SELECT * FROM claims ORDER BY id")
+	for i := range want {
+		want[i] *= years[i]
+	}
+	sameBits(t, "copse_score with exposure", queryFloats(t, db, "SELECT copse_score('freq', c) FROM claims c ORDER BY id"), want)
+	sameBits(t, "copse_predict with exposure", queryFloats(t, db, "SELECT prediction FROM copse_predict('freq', 'claims') ORDER BY id"), want)
+	// The exposure scales the prediction: twice the years, twice the mean count.
+	twice := queryFloats(t, db, "SELECT copse_score('freq', {'x1': x1, 'x2': x2, 'YEARS': 2 * years}) FROM claims ORDER BY id")
+	for i := range twice {
+		if math.Abs(twice[i]-2*want[i]) > 1e-12*want[i] {
+			t.Fatalf("row %d: %v with twice the exposure, %v with it", i, twice[i], want[i])
+		}
+	}
+	if n := queryFloats(t, db, "SELECT count(*) FROM claims c WHERE copse_score('freq', {'x1': x1, 'x2': x2, 'years': CASE WHEN id % 2 = 0 THEN NULL ELSE years END}) IS NULL"); n[0] != 400 {
+		t.Errorf("NULL exposure: %v NULL scores, want 400", n)
+	}
+	wantErr(t, db, "SELECT copse_score('freq', {'x1': x1, 'x2': x2}) FROM claims", `"freq"`, `exposure "years"`, "lacks")
+	wantErr(t, db, "SELECT copse_score('freq', {'x1': x1, 'x2': x2, 'years': 'a'}) FROM claims", `"freq"`, `exposure "years"`)
+	wantErr(t, db, "SELECT copse_score('freq', {'x1': x1, 'x2': x2, 'years': years - 3}) FROM claims", `"freq"`, `exposure "years"`, "above 0")
+
+	trExec(t, db, "CREATE TABLE bad AS SELECT x1, x2, y, CASE WHEN id = 5 THEN 0 ELSE years END AS years, "+
+		"CASE WHEN id = 6 THEN NULL ELSE years END AS yn, 'a' AS txt FROM claims")
+	const ok = "'bad', target := 'y', method := 'boosting', trees := 3"
+	for _, tc := range []struct {
+		q    string
+		want []string
+	}{
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := 'years')", []string{`exposure "years"`, "is 0 in row 5", "above 0"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := 'yn', exclude := ['years'])", []string{`exposure "yn"`, "NULL in row 6"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := 'txt')", []string{`exposure "txt"`, "numeric"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := 'nope')", []string{`exposure "nope"`, "no such column"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := 'y')", []string{`exposure "y"`, "target"}},
+		{"CALL copse_train('m', " + ok + ", exposure := 'years')", []string{"exposure", "loss := 'poisson'"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'squared', exposure := 'years')", []string{"exposure", "loss := 'poisson'"}},
+		{"CALL copse_train('m', 'bad', target := 'y', exposure := 'years')", []string{"exposure", "'forest'", "'boosting'"}},
+		{"CALL copse_train('m', " + ok + ", loss := 'poisson', exposure := '')", []string{"exposure is empty"}},
+	} {
+		trWantErr(t, db, tc.q, tc.want...)
+	}
+	if got := trRows(t, db, "SELECT count(*) FROM copse_models() WHERE name = 'm'"); got[0][0] != "0" {
+		t.Errorf("model m saved: %v", got)
+	}
+}
+
+// Multinomial boosting through SQL: a three-class target takes loss 'multinomial' by
+// default; the model encodes to forest.Train's bytes, and copse_score (per class),
+// copse_label and copse_predict equal the engine's Predict.
+func TestBoostSQLMultinomial(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	mustExec(t, db, "CREATE TABLE iris AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/iris.csv')")
+	row := bsTrain(t, db, "irb", "iris", "target := 'species', method := 'boosting', exclude := ['id'], trees := 20, max_depth := 3, "+
+		"holdout_fraction := 0.2, seed := 8")
+	if row["task"] != "classification" || row["oob_metric"] != "holdout_log_loss" {
+		t.Errorf("summary %v", row)
+	}
+	p := forest.DefaultParams(forest.MethodBoosting)
+	p.Trees, p.MaxDepth, p.HoldoutFraction, p.Seed = 20, 3, 0.2, 8
+	trSameModel(t, h, "irb", trCSV(t, "iris.csv", "species"), p)
+	m, _ := trModel(t, h, "irb")
+	if m.Boost.Loss != forest.LossMultinomial || len(m.Trees) != 3*m.Boost.BestRound {
+		t.Fatalf("loss %q, %d trees, best round %d", m.Boost.Loss, len(m.Trees), m.Boost.BestRound)
+	}
+	bsTrain(t, db, "irm", "iris", "target := 'species', method := 'boosting', loss := 'multinomial', exclude := ['id'], trees := 20, max_depth := 3, "+
+		"holdout_fraction := 0.2, seed := 8")
+	m2, _ := trModel(t, h, "irm")
+	if a, b := encodeModel(t, m), encodeModel(t, m2); !slices.Equal(a, b) {
+		t.Error("loss := 'multinomial' differs from the default for three classes")
+	}
+	want := enginePredict(t, db, m, "SELECT * FROM iris ORDER BY id")
+	for k, class := range m.Classes {
+		sameBits(t, "copse_score "+class, queryFloats(t, db, "SELECT copse_score('irb', i, '"+class+"') FROM iris i ORDER BY id"), column(want, 3, k))
+	}
+	var labels []string
+	for i := range 150 {
+		labels = append(labels, m.Classes[forest.Class(want[3*i:3*i+3])])
+	}
+	if got := queryStrings(t, db, "SELECT copse_label('irb', i) FROM iris i ORDER BY id"); !slices.Equal(got, labels) {
+		t.Error("copse_label differs from the engine's classes")
+	}
+	if got := queryStrings(t, db, "SELECT prediction FROM copse_predict('irb', 'iris') ORDER BY id"); !slices.Equal(got, labels) {
+		t.Error("copse_predict's prediction differs from the engine's classes")
+	}
+	if n := queryFloats(t, db, "SELECT count(*) FROM copse_curve('irb') WHERE metric = 'holdout_loss'"); n[0] != float64(m.Boost.Rounds) {
+		t.Errorf("curve: %v holdout points for %d rounds", n, m.Boost.Rounds)
+	}
+}
+
+func encodeModel(t testing.TB, m *forest.Model) []byte {
+	t.Helper()
+	b, err := m.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
 }

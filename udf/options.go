@@ -39,10 +39,12 @@ var trainOptions = []duck.Param{
 	{Name: "leaf_penalty", Type: duck.Double},
 	{Name: "holdout_fraction", Type: duck.Double},
 	{Name: "patience", Type: duck.Double},
+	{Name: "quantile", Type: duck.Double},
+	{Name: "exposure", Type: duck.Varchar},
 }
 
 // boostOptions are the options only method 'boosting' takes.
-var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience"}
+var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience", "quantile", "exposure"}
 
 // Task option values; "auto" lets the target's type decide.
 const (
@@ -67,6 +69,7 @@ type trainCall struct {
 
 	target   string
 	weight   string // "" for none
+	exposure string // "" for none: loss 'poisson''s offset column
 	key      string // "" for none
 	exclude  []string
 	positive string
@@ -122,10 +125,13 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 	if c.key, _, err = text("key"); err != nil {
 		return nil, err
 	}
+	if c.exposure, _, err = text("exposure"); err != nil {
+		return nil, err
+	}
 	if c.positive, c.hasPos, err = text("positive"); err != nil {
 		return nil, err
 	}
-	for _, col := range []struct{ opt, v string }{{"weight", c.weight}, {"key", c.key}} {
+	for _, col := range []struct{ opt, v string }{{"weight", c.weight}, {"key", c.key}, {"exposure", c.exposure}} {
 		if col.v != "" && strings.EqualFold(col.v, c.target) {
 			return nil, fail("%s %q is the target", col.opt, col.v)
 		}
@@ -230,6 +236,7 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		{"features_per_split", nil, &p.FeaturesPerSplit}, {"row_fraction", nil, &p.RowFraction},
 		{"learning_rate", nil, &p.LearningRate}, {"leaf_penalty", nil, &p.LeafPenalty},
 		{"holdout_fraction", nil, &p.HoldoutFraction}, {"patience", &p.Patience, nil},
+		{"quantile", nil, &p.Quantile},
 	} {
 		var err error
 		if o.i != nil {
@@ -245,10 +252,23 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		return nil, err
 	} else if ok {
 		switch l := forest.Loss(strings.ToLower(v)); l {
-		case forest.LossSquared, forest.LossLogistic:
+		case forest.LossSquared, forest.LossAbsolute, forest.LossHuber, forest.LossQuantile,
+			forest.LossPoisson, forest.LossLogistic, forest.LossMultinomial:
 			p.Loss = l
 		default:
-			return nil, fail("loss %q: want 'squared' (regression) or 'logistic' (two classes)", v)
+			return nil, fail("loss %q: want 'squared', 'absolute', 'huber', 'quantile' or 'poisson' (regression), "+
+				"'logistic' (two classes) or 'multinomial' (three or more)", v)
+		}
+	}
+	if c.exposure != "" && p.Loss != forest.LossPoisson {
+		return nil, fail("exposure: only loss := 'poisson' takes it")
+	}
+	if named["quantile"] != nil {
+		if p.Loss != forest.LossQuantile {
+			return nil, fail("quantile: only loss := 'quantile' takes it")
+		}
+		if !(p.Quantile > 0 && p.Quantile < 1) {
+			return nil, fail("quantile %v: want a number in (0, 1)", p.Quantile)
 		}
 	}
 	if v, ok := named["with_replacement"].(bool); ok {

@@ -293,7 +293,10 @@ type scorer struct {
 	// fixedClass is the class copse_score returns, or -1 when a non-constant third
 	// argument names it per row.
 	fixedClass int
-	pool       sync.Pool // *scratch
+	// exposure is the row field holding the exposure of a Poisson model trained with
+	// one, or -1: the prediction, a rate per unit of exposure, is multiplied by it.
+	exposure int
+	pool     sync.Pool // *scratch
 }
 
 // scratch is one executor call's working memory, sized for DuckDB's largest chunk.
@@ -311,7 +314,8 @@ const maxChunk = 2048
 // newScorer maps the row's fields to the model's features: by exact name first, then
 // ignoring case; other fields are ignored.
 func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
-	s := &scorer{model: m, label: fmt.Sprintf("%q (version %d)", e.Name, e.Version), inputs: make([]input, len(m.Features)), fixedClass: -1}
+	s := &scorer{model: m, label: fmt.Sprintf("%q (version %d)", e.Name, e.Version), inputs: make([]input, len(m.Features)),
+		fixedClass: -1, exposure: -1}
 	used := make([]bool, len(m.Features))
 	for _, t := range m.Trees {
 		for i := range t.Nodes {
@@ -377,6 +381,21 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 				ErrRow, s.label, feat.Name, f.Name, f.Type)
 		}
 		s.inputs[fi] = in
+	}
+	if name := m.Params.Exposure; name != "" {
+		idx, ok := exact[name]
+		if !ok {
+			c := folded[strings.ToLower(name)]
+			if len(c) == 0 {
+				return nil, fmt.Errorf("%w: model %s needs exposure %q, which the row lacks (row fields: %s)",
+					ErrRow, s.label, name, fieldList(row))
+			}
+			idx = c[0]
+		}
+		if f := row.Fields[idx]; !f.Type.Numeric() {
+			return nil, fmt.Errorf("%w: model %s: exposure %q is %v in the row; cast it to a number", ErrRow, s.label, name, f.Type)
+		}
+		s.exposure = idx
 	}
 	if m.Task == forest.Classification {
 		s.classIdx = make(map[string]int, len(m.Classes))
@@ -509,6 +528,30 @@ func (s *scorer) run(site *scoreSite, in *duck.ScalarInput, out *duck.ScalarOutp
 	}
 	pred := sc.pred[:rows*W]
 	m.PredictBlock(block, p, pred, sc.leaves[:rows])
+	var expNull []bool // rows whose exposure is NULL score NULL
+	if s.exposure >= 0 {
+		col := sc.col[:n]
+		if err := in.Field(1, s.exposure).Float64s(col); err != nil {
+			return fmt.Errorf("%s: model %s: exposure %q: %w", site.fn, s.label, m.Params.Exposure, err)
+		}
+		for j := range rows {
+			i := j
+			if sel != nil {
+				i = int(sel[j])
+			}
+			switch e := col[i]; {
+			case e != e:
+				if expNull == nil {
+					expNull = make([]bool, rows)
+				}
+				expNull[j] = true
+			case !(e > 0) || math.IsInf(e, 0):
+				return fmt.Errorf("%s: model %s: exposure %q is %v; want a finite number above 0", site.fn, s.label, m.Params.Exposure, e)
+			default:
+				pred[j] *= e // W is 1: a Poisson model predicts one number
+			}
+		}
+	}
 
 	rowVec := in.Arg(1)
 	var classes duck.Vec
@@ -525,7 +568,7 @@ func (s *scorer) run(site *scoreSite, in *duck.ScalarInput, out *duck.ScalarOutp
 		if sel != nil {
 			i = int(sel[j])
 		}
-		if !rowVec.Valid(i) || (names != nil && !names.Valid(i)) {
+		if !rowVec.Valid(i) || (names != nil && !names.Valid(i)) || (expNull != nil && expNull[j]) {
 			out.SetNull(i)
 			continue
 		}

@@ -282,6 +282,7 @@ type layout struct {
 	cols     []srcColumn
 	target   int
 	weight   int // -1: none
+	exposure int // -1: none
 	key      int // -1: none
 	features []int
 	skip     map[string]bool // excluded columns, not read at all
@@ -317,7 +318,7 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 		}
 		return -1, fail("%s %q: no such column in the source (its columns: %s)", opt, name, columnList(cols))
 	}
-	l := &layout{cols: cols, weight: -1, key: -1, skip: map[string]bool{}}
+	l := &layout{cols: cols, weight: -1, exposure: -1, key: -1, skip: map[string]bool{}}
 	var err error
 	if l.target, err = find("target", c.target); err != nil {
 		return nil, err
@@ -332,10 +333,18 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 			return nil, err
 		}
 	}
+	if c.exposure != "" {
+		if l.exposure, err = find("exposure", c.exposure); err != nil {
+			return nil, err
+		}
+	}
 	if l.weight >= 0 && l.weight == l.key {
 		return nil, fail("weight and key name the same column %q", cols[l.key].name)
 	}
-	role := func(i int) bool { return i == l.target || i == l.weight || i == l.key }
+	if i := l.exposure; i >= 0 && (i == l.target || i == l.weight || i == l.key) {
+		return nil, fail("exposure %q is also the target, weight or key", cols[i].name)
+	}
+	role := func(i int) bool { return i == l.target || i == l.weight || i == l.key || i == l.exposure }
 	excluded := map[int]bool{}
 	for _, e := range c.exclude {
 		i, err := find("exclude", e)
@@ -375,6 +384,11 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 	if l.weight >= 0 {
 		if w := cols[l.weight]; w.kind == kindCategorical || w.kind == kindUnsupported {
 			return nil, fail("weight %q has type %s; want a numeric column", w.name, w.typ)
+		}
+	}
+	if l.exposure >= 0 {
+		if e := cols[l.exposure]; e.kind == kindCategorical || e.kind == kindUnsupported || e.kind == kindBoolean {
+			return nil, fail("exposure %q has type %s; want a numeric column", e.name, e.typ)
 		}
 	}
 	for i, col := range cols {
@@ -600,6 +614,25 @@ func (c *trainCall) build(l *layout, byCol []*duck.ResultColumn) (*trainingData,
 		}
 		if err := d.SetWeights(w); err != nil {
 			return nil, fail("weight %q: %w", l.cols[l.weight].name, err)
+		}
+	}
+	if l.exposure >= 0 {
+		e := compact(byCol[l.exposure].Values, keep)
+		for i, v := range e {
+			if !(v > 0) || math.IsInf(v, 0) {
+				src := i
+				if keep != nil {
+					src = int(keep[i])
+				}
+				what := strconv.FormatFloat(v, 'g', -1, 64)
+				if math.IsNaN(v) {
+					what = "NULL"
+				}
+				return nil, fail("exposure %q is %s in row %d; want a finite number above 0", l.cols[l.exposure].name, what, src+1)
+			}
+		}
+		if err := d.SetExposure(l.cols[l.exposure].name, e); err != nil {
+			return nil, fail("exposure %q: %w", l.cols[l.exposure].name, err)
 		}
 	}
 	if l.key >= 0 {

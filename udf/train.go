@@ -119,31 +119,37 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 }
 
 // checkLoss refuses, before any training, a loss that does not fit the target as it is
-// trained: 'logistic' needs classes, 'squared' a numeric value. A target whose kind only
-// the data tell is left to the engine, whose error names the loss too.
+// trained: 'logistic' and 'multinomial' need classes, the others a numeric value. A
+// target whose kind only the data tell is left to the engine, whose error names the
+// loss too.
 func (c *trainCall) checkLoss(l *layout, cols []srcColumn) error {
 	loss := c.params.Loss
 	if loss == "" || l.classify < 0 {
 		return nil
 	}
 	t := cols[l.target]
+	classes := loss == forest.LossLogistic || loss == forest.LossMultinomial
 	switch {
-	case loss == forest.LossLogistic && l.classify == 0:
-		return fmt.Errorf("copse_train %q: loss 'logistic' needs a two-class target, and target %q (%s) is trained as regression; use loss := 'squared' or task := 'classification'",
-			c.name, t.name, t.typ)
-	case loss == forest.LossSquared && l.classify == 1:
-		return fmt.Errorf("copse_train %q: loss 'squared' needs a numeric target, and target %q (%s) is trained as classification; use loss := 'logistic'",
-			c.name, t.name, t.typ)
+	case classes && l.classify == 0:
+		return fmt.Errorf("copse_train %q: loss '%s' needs a class target, and target %q (%s) is trained as regression; use loss := 'squared' or task := 'classification'",
+			c.name, loss, t.name, t.typ)
+	case !classes && l.classify == 1:
+		return fmt.Errorf("copse_train %q: loss '%s' needs a numeric target, and target %q (%s) is trained as classification; use loss := 'logistic' or 'multinomial'",
+			c.name, loss, t.name, t.typ)
 	}
 	return nil
 }
 
-// Summary metric names of boosted models: the holdout loss at the kept round, mean
-// squared error (loss 'squared') or mean log loss (loss 'logistic').
-const (
-	holdoutMSE     = "holdout_mse"
-	holdoutLogLoss = "holdout_log_loss"
-)
+// Summary metric names of boosted models: the holdout loss at the kept round, by loss.
+var holdoutMetric = map[forest.Loss]string{
+	forest.LossSquared:     "holdout_mse",
+	forest.LossLogistic:    "holdout_log_loss",
+	forest.LossMultinomial: "holdout_log_loss",
+	forest.LossAbsolute:    "holdout_mae",
+	forest.LossHuber:       "holdout_huber",
+	forest.LossQuantile:    "holdout_pinball",
+	forest.LossPoisson:     "holdout_poisson_deviance",
+}
 
 // summaryMetric is the one metric copse_train's row and copse_models report: the first
 // out-of-bag metric of a bagged model, the holdout loss at the best round of a boosted
@@ -153,11 +159,7 @@ func summaryMetric(m *forest.Model) (name string, value float64, ok bool) {
 		return m.OOB.Metrics[0].Name, m.OOB.Metrics[0].Value, true
 	}
 	if b := m.Boost; b != nil && b.BestRound >= 1 && len(b.HoldoutLoss) >= b.BestRound {
-		name = holdoutMSE
-		if b.Loss == forest.LossLogistic {
-			name = holdoutLogLoss
-		}
-		return name, b.HoldoutLoss[b.BestRound-1], true
+		return holdoutMetric[b.Loss], b.HoldoutLoss[b.BestRound-1], true
 	}
 	return "", 0, false
 }

@@ -185,6 +185,20 @@ ref["breast_cancer_boosting"] = {
     "test_rows": test_rows,
     "test_log_loss": log_loss(y[is_test], hgb.predict_proba(X[is_test]), labels=hgb.classes_),
 }
+names, X, y = read_csv("iris.csv")
+# a fixed 30 % test split of the 150 rows (0-based row indices after the header)
+test_rows = sorted(int(i) for i in np.random.default_rng(20240104).permutation(len(y))[:45])
+is_test = np.zeros(len(y), dtype=bool)
+is_test[test_rows] = True
+hgb = HistGradientBoostingClassifier(loss="log_loss", **HGB).fit(X[~is_test], y[~is_test])
+assert list(hgb.classes_) == ["setosa", "versicolor", "virginica"]
+ref["iris_boosting"] = {
+    "model": "HistGradientBoostingClassifier(" + HGB_TEXT + ") on the rows of iris.csv "
+             "not in test_rows (softmax, one tree per class per round), scored on test_rows",
+    "test_rows": test_rows,
+    "test_log_loss": log_loss(y[is_test], hgb.predict_proba(X[is_test]), labels=hgb.classes_),
+    "test_accuracy": float(np.mean(hgb.predict(X[is_test]) == y[is_test])),
+}
 
 with open(os.path.join(HERE, "reference.json"), "w") as f:
     json.dump(ref, f, indent=2)
