@@ -32,7 +32,8 @@ func newDemoCmd(d *Deps, runF func(context.Context, *DemoOptions) error) *cobra.
 		Long: fmt.Sprintf(`Build an invented data set — %d invoices of a fictional wholesale distributor, whose
 lateness follows a known rule, and %d new invoices to score — then run the demo script
 (sql/demo.sql): train a random forest, read its out-of-bag error and feature importance,
-score the new invoices and list the models.
+score the new invoices, train a gradient-boosted model beside it and compare the two on
+the new invoices' known outcomes, and list the models.
 
 With --db the tables and models are kept in FILE (which must not hold them already), so
 that the recipes in sql/ can be run on it afterwards with 'copse sql --db FILE'.`, demodata.TrainRows, demodata.NewRows),
