@@ -87,14 +87,58 @@ func TestDecodeVersion2(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds 9 bytes to the params section: the quantile float and an
-	// empty exposure string.
-	if len(b) != len(old)+9 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9)
+	// Today's encoding adds 9 bytes to the params section (the quantile float and an
+	// empty exposure string) and an empty section 8 (tag and length: 2 bytes).
+	if len(b) != len(old)+9+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9+2)
 	}
 	m3, err := Decode(b)
 	if err != nil {
 		t.Fatal(err)
 	}
 	encSameModel(t, m2, m3)
+}
+
+// A model written in format version 3 (before AdaBoost) still decodes, scores as before,
+// and re-encodes in today's version to the same model with no AdaBoost record.
+// testdata/models/iris-multinomial.v3.cpsm is the "iris-multinomial" fuzz seed as the
+// version-3 encoder wrote it (the working tree of commit 90ec2cc).
+func TestDecodeVersion3(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/iris-multinomial.v3.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 3 {
+		t.Fatalf("fixture is format version %d, want 3", old[4])
+	}
+	m3, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 3: %v", err)
+	}
+	if m3.Boost == nil || m3.Boost.Loss != LossMultinomial || m3.AdaBoost != nil {
+		t.Fatalf("version 3 model: boost %+v, adaboost %+v", m3.Boost, m3.AdaBoost)
+	}
+	b, err := m3.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion {
+		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
+	}
+	// Today's encoding adds an empty section 8: its tag and a zero length.
+	if len(b) != len(old)+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+2)
+	}
+	m4, err := Decode(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	encSameModel(t, m3, m4)
+	iris := readTable(t, "iris.csv")
+	cols := iris.columns(m3)
+	b3, r3 := encPredictions(t, m3, cols)
+	b4, r4 := encPredictions(t, m4, cols)
+	encSameFloats(t, "Predict", b3, b4)
+	encSameFloats(t, "PredictRow", r3, r4)
+	encSameFloats(t, "Predict against PredictRow", b3, r3)
 }

@@ -1,7 +1,7 @@
 // Package forest is copse's tree-ensemble engine: it bins a columnar data set once, grows
 // trees by histogram split search, and combines them as a single tree, bagging, a random
-// forest or gradient boosting, with out-of-bag results, importance and a binary model
-// encoding.
+// forest, gradient boosting or AdaBoost, with out-of-bag results, importance and a binary
+// model encoding.
 //
 // It is pure Go: it knows nothing of SQL, DuckDB or the command line. The host fills a
 // [Dataset] column by column, calls [Train], and scores with [Model.Predict] or

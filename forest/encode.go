@@ -1,14 +1,15 @@
 package forest
 
-// The binary model encoding, format version 3. It holds everything scoring and explaining
+// The binary model encoding, format version 4. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
 // Decode also reads version 1 (before boosting: no section 7, no boosting controls) and
-// version 2 (no quantile control), so models stored by earlier builds keep scoring.
+// version 2 (no quantile control) and version 3 (no section 8), so models stored by
+// earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 3
-//	6       sections  the seven below, in tag order, each: tag byte, body length uvarint, body
+//	4       version   uint16, 4
+//	6       sections  the eight below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
 // Fixed-width numbers are little-endian; a float is its full 64-bit IEEE pattern, so NaN
@@ -52,6 +53,8 @@ package forest
 //	                 loss list of float, holdout loss list of float (multinomial: one
 //	                 initial score per class, and the trees round-major, tree t adding
 //	                 to class t mod K)
+//	8    adaboost    empty when the model is not AdaBoost; else α list of float and
+//	                 error list of float, one each per tree (since 4)
 //
 // A tree's width (the number of classes, or 1 for boosted and regression trees) and each
 // binning's kind are implied, not
@@ -69,7 +72,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 3
+	encodingVersion = 4
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -116,6 +119,7 @@ var sections = [...]section{
 	{5, "oob", 1, (*encWriter).oob, (*encReader).oob},
 	{6, "importance", 1, (*encWriter).importance, (*encReader).importance},
 	{7, "boost", 2, (*encWriter).boost, (*encReader).boost},
+	{8, "adaboost", 4, (*encWriter).adaboost, (*encReader).adaboost},
 }
 
 // MarshalBinary encodes the model in the layout described at the top of this file. It
@@ -388,6 +392,13 @@ func (w *encWriter) boost(m *Model) {
 	w.uvarint(uint64(b.BestRound))
 	w.floats(b.TrainLoss)
 	w.floats(b.HoldoutLoss)
+}
+
+func (w *encWriter) adaboost(m *Model) {
+	if a := m.AdaBoost; a != nil {
+		w.floats(a.Alpha)
+		w.floats(a.Error)
+	}
 }
 
 // encReader reads encoded fields from untrusted bytes. The first error sticks: later reads
@@ -745,12 +756,47 @@ func (r *encReader) boost(m *Model) {
 	m.Boost = b
 }
 
+func (r *encReader) adaboost(m *Model) {
+	if len(r.b) == 0 {
+		return // not AdaBoost
+	}
+	m.AdaBoost = &AdaBoost{Alpha: r.floats("alpha"), Error: r.floats("error")}
+}
+
+// checkAdaBoost checks that a model has votes exactly when its method says so, one
+// finite α > 0 and one error in [0, 1 − 1/K) per tree.
+func (m *Model) checkAdaBoost() error {
+	a := m.AdaBoost
+	if (m.Method == MethodAdaBoost) != (a != nil) {
+		return fmt.Errorf("method %q with AdaBoost record %v", m.Method, a != nil)
+	}
+	if a == nil {
+		return nil
+	}
+	if m.Task != Classification || m.OOB != nil || m.Boost != nil {
+		return fmt.Errorf("AdaBoost for %s, with out-of-bag results %v, boosting record %v", m.Task, m.OOB != nil, m.Boost != nil)
+	}
+	if len(a.Alpha) != len(m.Trees) || len(a.Error) != len(m.Trees) {
+		return fmt.Errorf("%d α and %d errors for %d trees", len(a.Alpha), len(a.Error), len(m.Trees))
+	}
+	chance := 1 - 1/float64(len(m.Classes))
+	for t, v := range a.Alpha {
+		if !(v > 0) || math.IsInf(v, 0) {
+			return fmt.Errorf("tree %d: α %v; want a finite number above 0", t, v)
+		}
+		if e := a.Error[t]; !(e >= 0 && e < chance) {
+			return fmt.Errorf("tree %d: error %v; want [0, %v)", t, e, chance)
+		}
+	}
+	return nil
+}
+
 // checkStructure checks what Predict and the explaining code index by, so that a model
 // that passes can score any row without a panic or an endless loop. Decode runs it on
 // untrusted bytes; MarshalBinary runs it so that it never writes what Decode refuses.
 func (m *Model) checkStructure() error {
 	switch m.Method {
-	case MethodTree, MethodBagging, MethodForest, MethodBoosting:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost:
 	default:
 		return fmt.Errorf("unknown method %q", m.Method)
 	}
@@ -768,6 +814,9 @@ func (m *Model) checkStructure() error {
 		}
 	default:
 		return fmt.Errorf("unknown task %q", m.Task)
+	}
+	if err := m.checkAdaBoost(); err != nil {
+		return err
 	}
 	if m.Params.Method != m.Method || m.Params.Task != m.Task {
 		return fmt.Errorf("params say %s %s, the model is %s %s", m.Params.Method, m.Params.Task, m.Method, m.Task)

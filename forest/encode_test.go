@@ -137,6 +137,8 @@ func encFixtures(t testing.TB) []encFixture {
 		})},
 		{"breast_cancer/boosting", bc.dataset(t, "diagnosis"), bc, nil, params(MethodBoosting, func(p *Params) { p.MaxDepth = 3 })},
 		{"mixed/boosting-regression", mixR, nil, mixCols, params(MethodBoosting, func(p *Params) { p.FeaturesPerSplit = 2 })},
+		{"iris/adaboost", iris.dataset(t, "species"), iris, nil, params(MethodAdaBoost, nil)},
+		{"mixed/adaboost", mixC, nil, mixCols, params(MethodAdaBoost, func(p *Params) { p.MaxDepth, p.LearningRate = 3, 0.5 })},
 	}
 	out := make([]encFixture, len(cases))
 	for i, c := range cases {
@@ -356,7 +358,8 @@ func TestEncodeRoundTrip(t *testing.T) {
 // encoded (with a new format version) and added here.
 func TestEncodeCoversEveryField(t *testing.T) {
 	want := map[reflect.Type][]string{
-		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost"},
+		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost"},
+		reflect.TypeFor[AdaBoost]():    {"Alpha", "Error"},
 		reflect.TypeFor[Boost]():       {"Loss", "InitScore", "Rounds", "BestRound", "TrainLoss", "HoldoutLoss"},
 		reflect.TypeFor[FeatureInfo](): {"Name", "Kind", "Levels", "Binning"},
 		reflect.TypeFor[Binning]():     {"Kind", "Upper", "LevelBin", "Counts"},
@@ -458,6 +461,7 @@ func encHandSections() [][]encField {
 		{{"imp.impurity", encJoin(encUv(2), encF64(1))}, {"imp.permutation", encJoin(encUv(2), encF64(math.Copysign(0, -1)))},
 			{"imp.permutation_std", encUv(0)}},
 		{}, // not boosted
+		{}, // not AdaBoost
 	}
 }
 
@@ -612,7 +616,7 @@ func TestDecodeCorruptFields(t *testing.T) {
 		}, "impurity importance: 2 values for 1 features"},
 		{"empty importance", func(s [][]encField) [][]encField { return encSet(s, "imp.permutation_std", encUv(1)) }, "permutation std importance: 0 values"},
 		{"bytes left in a section", func(s [][]encField) [][]encField { s[0] = append(s[0], encField{"extra", []byte{0}}); return s }, "section model: 1 bytes left over"},
-		{"eighth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
+		{"ninth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -840,12 +844,14 @@ func encFuzzSeeds(t testing.TB) [][]byte {
 	}
 	poisson := boost
 	poisson.Loss = LossPoisson
+	ada := DefaultParams(MethodAdaBoost)
+	ada.Trees, ada.Bins = 5, 8
 	seeds := [][]byte{encMust(t, encHandModel())}
 	for _, c := range []struct {
 		d *Dataset
 		p Params
 	}{{iris.dataset(t, "species"), stump}, {mixed, small}, {mixedR, small}, {bc.dataset(t, "diagnosis"), boost},
-		{iris.dataset(t, "species"), boost}, {counts, poisson}} {
+		{iris.dataset(t, "species"), boost}, {counts, poisson}, {iris.dataset(t, "species"), ada}} {
 		m, err := Train(context.Background(), c.d, c.p)
 		if err != nil {
 			t.Fatal(err)

@@ -9,7 +9,8 @@ import (
 // Importance holds per-feature importances, in model feature order.
 type Importance struct {
 	// Impurity is the mean decrease in impurity: each tree's split gains per feature as a
-	// share of that tree's total, averaged over trees, normalised to sum to 1.
+	// share of that tree's total, averaged over trees, normalised to sum to 1. AdaBoost
+	// weighs each tree's shares by its vote α, as its predictions do.
 	Impurity []float64
 	// Permutation is the mean increase in a tree's out-of-bag loss (error rate, or MSE for
 	// regression) when the feature's values are shuffled among that tree's out-of-bag rows
@@ -31,7 +32,12 @@ const (
 func impurityImportance(m *Model) []float64 {
 	imp := make([]float64, len(m.Features))
 	per := make([]float64, len(m.Features))
-	for _, t := range m.Trees {
+	for ti, t := range m.Trees {
+		// AdaBoost weighs each tree's shares by its vote α (the trees vote with it).
+		tw := 1.0
+		if m.AdaBoost != nil {
+			tw = m.AdaBoost.Alpha[ti]
+		}
 		clear(per)
 		total := 0.0
 		for i, n := range t.Nodes {
@@ -42,7 +48,7 @@ func impurityImportance(m *Model) []float64 {
 		}
 		if total > 0 {
 			for f := range per {
-				imp[f] += per[f] / total
+				imp[f] += tw * per[f] / total
 			}
 		}
 	}

@@ -27,11 +27,13 @@ type Model struct {
 	Rows     int    // training rows
 	Trees    []*Tree
 
-	OOB        *OOB // nil for MethodTree and MethodBoosting
+	OOB        *OOB // nil for MethodTree, MethodBoosting and MethodAdaBoost
 	Importance Importance
 	// Boost is set on boosted models: they sum their trees and add an initial score
 	// instead of averaging.
 	Boost *Boost
+	// AdaBoost is set on AdaBoost models: their trees vote with weights.
+	AdaBoost *AdaBoost
 }
 
 // Boost is what a boosted model adds: how its raw score starts and becomes a prediction,
@@ -90,7 +92,8 @@ func (m *Model) Width() int {
 
 // PredictRow writes the prediction for one row into dst, which must hold Width numbers,
 // and returns it: class probabilities averaged over trees, or the mean value; a boosted
-// model sums its trees onto the initial score and applies the loss's link. A row holds
+// model sums its trees onto the initial score and applies the loss's link; an AdaBoost
+// model returns its α-weighted vote shares. A row holds
 // one number per feature in model order: categorical features as level codes, NaN (or a
 // negative code) for missing values. It does not allocate.
 func (m *Model) PredictRow(row, dst []float64) []float64 {
@@ -113,6 +116,17 @@ func (m *Model) PredictRow(row, dst []float64) []float64 {
 		return dst
 	}
 	clear(dst)
+	if a := m.AdaBoost; a != nil {
+		sum := 0.0
+		for ti, t := range m.Trees {
+			adaVote(t.NodeValue(t.Leaf(row)), a.Alpha[ti], dst)
+			sum += a.Alpha[ti]
+		}
+		for k := range dst {
+			dst[k] /= sum
+		}
+		return dst
+	}
 	for _, t := range m.Trees {
 		v := t.NodeValue(t.Leaf(row))
 		for k := range dst {
@@ -228,6 +242,21 @@ func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int3
 		return
 	}
 	clear(out)
+	if a := m.AdaBoost; a != nil {
+		// The same votes in the same tree order as PredictRow.
+		sum := 0.0
+		for ti, t := range m.Trees {
+			t.LeafBatch(rows, p, leaves)
+			for i, leaf := range leaves {
+				adaVote(t.Value[int(leaf)*W:int(leaf+1)*W], a.Alpha[ti], out[i*W:(i+1)*W])
+			}
+			sum += a.Alpha[ti]
+		}
+		for i := range out[:n*W] {
+			out[i] /= sum
+		}
+		return
+	}
 	for _, t := range m.Trees {
 		t.LeafBatch(rows, p, leaves)
 		if W == 1 {

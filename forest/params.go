@@ -21,6 +21,10 @@ const (
 	// MethodBoosting fits shallow trees one after another, each to the gradient of the
 	// loss at the current scores, and sums them (Friedman 2001).
 	MethodBoosting Method = "boosting"
+	// MethodAdaBoost reweights the rows each round towards those the trees so far
+	// misclassify and lets the trees vote with weights (classification only: Freund &
+	// Schapire 1997; SAMME, Zhu et al. 2009). Defaults: stumps, learning rate 1.
+	MethodAdaBoost Method = "adaboost"
 )
 
 // Loss is the loss a boosted model minimises; it fixes the initial score and the link.
@@ -114,14 +118,15 @@ type Params struct {
 	// Task is taken from the target when empty: categorical targets classify.
 	Task     Task
 	Impurity Impurity // classification only; default Gini
-	// Trees is the number of trees (always 1 for MethodTree); for boosting, the most
-	// rounds, one tree each.
+	// Trees is the number of trees (always 1 for MethodTree); for boosting and AdaBoost,
+	// the most rounds, one tree each.
 	Trees int
 	// MaxDepth limits tree depth (root = depth 0); 0 means unlimited.
 	MaxDepth int
 	// MinLeaf is the least weight a leaf may hold; unweighted, that is a row count
 	// (bootstrap copies count once each). Boosting counts row weight too, not the
-	// hessian weight its gains use.
+	// hessian weight its gains use. AdaBoost rescales its row weights to sum to the row
+	// count each round, so MinLeaf is a count of average-weight rows there.
 	MinLeaf float64
 	// MinGain is the least impurity decrease a split must bring, as a share of the
 	// root's weight (the decrease at the node × node weight / root weight).
@@ -147,7 +152,8 @@ type Params struct {
 	// Loss is the boosting loss; empty takes squared for regression, logistic for two
 	// classes and multinomial for more.
 	Loss Loss
-	// LearningRate shrinks every boosted tree's values (boosting only), in (0, 1].
+	// LearningRate shrinks every boosted tree's values (boosting), or multiplies every
+	// AdaBoost tree's α (default 1 there), in (0, 1].
 	LearningRate float64
 	// LeafPenalty is the L2 penalty λ on boosted leaf values: a leaf's value is
 	// −Σg/(Σh + λ). Boosting only; ≥ 0.
@@ -190,6 +196,10 @@ func DefaultParams(m Method) Params {
 		p.MaxDepth, p.WithReplacement = DefaultBoostDepth, false
 		p.LearningRate, p.Patience = DefaultLearningRate, DefaultPatience
 	}
+	if m == MethodAdaBoost {
+		// Stumps and no shrinkage, as in Freund & Schapire (1997) and Zhu et al. (2009).
+		p.MaxDepth, p.WithReplacement, p.LearningRate = 1, false, 1
+	}
 	return p
 }
 
@@ -197,9 +207,9 @@ func DefaultParams(m Method) Params {
 // checks that do (features per split against the feature count) run in Train.
 func (p Params) Validate() error {
 	switch p.Method {
-	case MethodTree, MethodBagging, MethodForest, MethodBoosting:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost:
 	default:
-		return fmt.Errorf("forest: method %q: want %q, %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest, MethodBoosting)
+		return fmt.Errorf("forest: method %q: want %q, %q, %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost)
 	}
 	switch p.Task {
 	case "", Classification, Regression:
@@ -239,7 +249,36 @@ func (p Params) Validate() error {
 	if p.Threads < 0 {
 		return fmt.Errorf("forest: threads %d: want 0 (all cores) or more", p.Threads)
 	}
+	if p.Method == MethodAdaBoost {
+		return p.validateAdaBoost()
+	}
 	return p.validateBoosting()
+}
+
+// validateAdaBoost refuses the controls AdaBoost has no use for, naming them.
+func (p Params) validateAdaBoost() error {
+	m := MethodAdaBoost
+	switch {
+	case p.Task == Regression:
+		return fmt.Errorf("forest: method %q classifies; the task is %q", m, Regression)
+	case p.Loss != "":
+		return fmt.Errorf("forest: loss %q: only method %q takes a loss", p.Loss, MethodBoosting)
+	case p.HoldoutFraction != 0:
+		return fmt.Errorf("forest: holdout_fraction %g: method %q does not stop early on a holdout", p.HoldoutFraction, m)
+	case p.RowFraction != 1:
+		return fmt.Errorf("forest: row_fraction %g: method %q grows every tree on all rows", p.RowFraction, m)
+	case p.WithReplacement:
+		return fmt.Errorf("forest: with_replacement: method %q does not resample rows", m)
+	case p.FeaturesPerSplit != 0:
+		return fmt.Errorf("forest: features_per_split %g: method %q considers every feature", p.FeaturesPerSplit, m)
+	case p.LeafPenalty != 0:
+		return fmt.Errorf("forest: leaf_penalty %g: only method %q takes a leaf penalty", p.LeafPenalty, MethodBoosting)
+	case p.Quantile != 0 || p.Exposure != "":
+		return fmt.Errorf("forest: quantile and exposure: only method %q takes them", MethodBoosting)
+	case !(p.LearningRate > 0 && p.LearningRate <= 1):
+		return fmt.Errorf("forest: learning_rate %g: want a number in (0, 1]", p.LearningRate)
+	}
+	return nil
 }
 
 // validateBoosting checks the boosting controls, and that other methods leave them unset.

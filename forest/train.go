@@ -30,6 +30,9 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	if err := d.check(task); err != nil {
 		return nil, err
 	}
+	if p.Method == MethodAdaBoost && task != Classification {
+		return nil, fmt.Errorf("forest: method %q classifies: target %q is numeric", MethodAdaBoost, d.target.name)
+	}
 	drawn, err := p.featuresPerSplit(task, len(d.features))
 	if err != nil {
 		return nil, err
@@ -93,9 +96,12 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 
 	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, drawn: drawn}
 	fr := &fitRun{d: d, set: set, p: p, cfg: cfg, stop: &stop}
-	if p.Method == MethodBoosting {
+	switch p.Method {
+	case MethodBoosting:
 		m.Trees, m.Boost, err = fr.boost(loss, threads)
-	} else {
+	case MethodAdaBoost:
+		m.Trees, m.AdaBoost, err = fr.adaboost(threads)
+	default:
 		m.Trees, fr.inbag, err = fr.growAll(threads)
 	}
 	if err != nil {
@@ -106,7 +112,7 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	}
 	// Out-of-bag results and permutation importance need bootstrap trees that each saw
 	// part of the rows; boosted trees fit each other's residuals, so neither applies.
-	bagged := p.Method != MethodTree && p.Method != MethodBoosting
+	bagged := p.Method != MethodTree && p.Method != MethodBoosting && p.Method != MethodAdaBoost
 	if bagged {
 		oob, err := outOfBag(m, d, fr.inbag, threads, &stop)
 		if err != nil {

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"github.com/copse-dev/copse/forest"
@@ -153,10 +154,10 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		return nil, err
 	} else if ok {
 		switch m := forest.Method(strings.ToLower(v)); m {
-		case forest.MethodForest, forest.MethodBagging, forest.MethodTree, forest.MethodBoosting:
+		case forest.MethodForest, forest.MethodBagging, forest.MethodTree, forest.MethodBoosting, forest.MethodAdaBoost:
 			method = m
 		default:
-			return nil, fail("method %q: want 'forest', 'bagging', 'tree' or 'boosting'", v)
+			return nil, fail("method %q: want 'forest', 'bagging', 'tree', 'boosting' or 'adaboost'", v)
 		}
 	}
 	// An option the method does not use would be silently ignored: refuse it instead.
@@ -170,9 +171,20 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 				return nil, fail("%s: method 'boosting' does not take it: %s; it applies to 'forest', 'bagging' and 'tree'", opt, why)
 			}
 		}
+	} else if method == forest.MethodAdaBoost {
+		// AdaBoost reweights every row each round and shrinks by learning_rate only.
+		for _, opt := range append(slices.Clone(boostOptions), "row_fraction", "with_replacement") {
+			if named[opt] != nil && opt != "learning_rate" {
+				return nil, fail("%s: method 'adaboost' does not take it: each round fits every row, reweighted; "+
+					"it takes trees, max_depth and learning_rate", opt)
+			}
+		}
 	} else {
 		for _, opt := range boostOptions {
 			if named[opt] != nil {
+				if opt == "learning_rate" {
+					return nil, fail("%s: method '%s' does not take it; it applies to method := 'boosting' and 'adaboost'", opt, method)
+				}
 				return nil, fail("%s: method '%s' does not take it; it applies to method := 'boosting'", opt, method)
 			}
 		}

@@ -96,7 +96,7 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 			switch m.Method {
 			case forest.MethodTree:
 				why = "a single tree has no out-of-bag rows to permute"
-			case forest.MethodBoosting:
+			case forest.MethodBoosting, forest.MethodAdaBoost:
 				why = "boosting has no out-of-bag rows to permute"
 			}
 			return nil, fmt.Errorf("%s: model %q (version %d) has no permutation importance: %s; use method := 'impurity'", fn, e.Name, e.Version, why)
@@ -134,6 +134,9 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 // noOOB is the error for a model without out-of-bag results.
 func noOOB(fn string, m *forest.Model, e Entry) error {
 	why := "a single tree sees every row; train a forest or bagging"
+	if m.Method == forest.MethodAdaBoost {
+		why = "each AdaBoost tree is grown on every training row, reweighted, so no row is out of a bag"
+	}
 	if m.Method == forest.MethodBoosting {
 		why = "each boosted tree fits what the trees before it left unexplained on every training row, so no row is out of a bag; " +
 			"train with holdout_fraction := 0.2 (say) for a holdout loss in copse_train's row and copse_curve"

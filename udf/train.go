@@ -100,7 +100,7 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 	p.Progress = func(done, total int) {
 		h.jobs.update(job, func(j *Job) {
 			j.TreesDone, j.Trees = done, total
-			bagged := p.Method != forest.MethodTree && p.Method != forest.MethodBoosting
+			bagged := p.Method != forest.MethodTree && p.Method != forest.MethodBoosting && p.Method != forest.MethodAdaBoost
 			if done == total && bagged {
 				j.Stage = "out-of-bag" // the out-of-bag pass and permutation importance follow
 			}
@@ -123,6 +123,11 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 // target whose kind only the data tell is left to the engine, whose error names the
 // loss too.
 func (c *trainCall) checkLoss(l *layout, cols []srcColumn) error {
+	if c.params.Method == forest.MethodAdaBoost && l.classify == 0 {
+		t := cols[l.target]
+		return fmt.Errorf("copse_train %q: method 'adaboost' classifies, and target %q (%s) is trained as regression; use task := 'classification' or method := 'boosting'",
+			c.name, t.name, t.typ)
+	}
 	loss := c.params.Loss
 	if loss == "" || l.classify < 0 {
 		return nil
