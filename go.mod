@@ -10,6 +10,7 @@ require (
 	github.com/spf13/cobra v1.10.2
 	golang.org/x/term v0.48.0
 	golang.org/x/tools v0.41.0
+	gonum.org/v1/gonum v0.17.0
 )
 
 require (

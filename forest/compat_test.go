@@ -87,10 +87,11 @@ func TestDecodeVersion2(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds 9 bytes to the params section (the quantile float and an
-	// empty exposure string) and an empty section 8 (tag and length: 2 bytes).
-	if len(b) != len(old)+9+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9+2)
+	// Today's encoding adds 17 bytes to the params section (the quantile float, an
+	// empty exposure string and the ridge float) and empty sections 8 and 9 (tag and
+	// length: 2 bytes each).
+	if len(b) != len(old)+17+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+17+2+2)
 	}
 	m3, err := Decode(b)
 	if err != nil {
@@ -125,9 +126,10 @@ func TestDecodeVersion3(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds an empty section 8: its tag and a zero length.
-	if len(b) != len(old)+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+2)
+	// Today's encoding adds the ridge float to the params section and empty sections 8
+	// and 9: a tag and a zero length each.
+	if len(b) != len(old)+8+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2)
 	}
 	m4, err := Decode(b)
 	if err != nil {
@@ -141,4 +143,49 @@ func TestDecodeVersion3(t *testing.T) {
 	encSameFloats(t, "Predict", b3, b4)
 	encSameFloats(t, "PredictRow", r3, r4)
 	encSameFloats(t, "Predict against PredictRow", b3, r3)
+}
+
+// A model written in format version 4 (before the linear baseline) still decodes, scores
+// as before, and re-encodes in today's version to the same model with no ridge and no
+// linear record. testdata/models/iris-adaboost.v4.cpsm is the "iris-adaboost" fuzz seed
+// as the version-4 encoder wrote it (copied before the encoder moved to version 5).
+func TestDecodeVersion4(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/iris-adaboost.v4.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 4 {
+		t.Fatalf("fixture is format version %d, want 4", old[4])
+	}
+	m4, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 4: %v", err)
+	}
+	if m4.AdaBoost == nil || m4.Linear != nil || m4.Params.Ridge != 0 {
+		t.Fatalf("version 4 model: adaboost %v, linear %v, ridge %v", m4.AdaBoost != nil, m4.Linear != nil, m4.Params.Ridge)
+	}
+	b, err := m4.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion {
+		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
+	}
+	// Today's encoding adds the ridge float to the params section and an empty section
+	// 9: its tag and a zero length.
+	if len(b) != len(old)+8+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2)
+	}
+	m5, err := Decode(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	encSameModel(t, m4, m5)
+	iris := readTable(t, "iris.csv")
+	cols := iris.columns(m4)
+	b4, r4 := encPredictions(t, m4, cols)
+	b5, r5 := encPredictions(t, m5, cols)
+	encSameFloats(t, "Predict", b4, b5)
+	encSameFloats(t, "PredictRow", r4, r5)
+	encSameFloats(t, "Predict against PredictRow", b4, r4)
 }

@@ -1,7 +1,8 @@
 // Package forest is copse's tree-ensemble engine: it bins a columnar data set once, grows
 // trees by histogram split search, and combines them as a single tree, bagging, a random
 // forest, gradient boosting or AdaBoost, with out-of-bag results, importance and a binary
-// model encoding.
+// model encoding. A linear baseline (least squares or logistic regression, optional
+// ridge; see [Linear]) is a model kind of the same engine, scored and encoded alike.
 //
 // It is pure Go: it knows nothing of SQL, DuckDB or the command line. The host fills a
 // [Dataset] column by column, calls [Train], and scores with [Model.Predict] or

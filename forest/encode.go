@@ -1,15 +1,16 @@
 package forest
 
-// The binary model encoding, format version 4. It holds everything scoring and explaining
+// The binary model encoding, format version 5. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
 // Decode also reads version 1 (before boosting: no section 7, no boosting controls) and
-// version 2 (no quantile control) and version 3 (no section 8), so models stored by
+// version 2 (no quantile control), version 3 (no section 8) and version 4 (no section 9,
+// no ridge control), so models stored by
 // earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 4
-//	6       sections  the eight below, in tag order, each: tag byte, body length uvarint, body
+//	4       version   uint16, 5
+//	6       sections  the nine below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
 // Fixed-width numbers are little-endian; a float is its full 64-bit IEEE pattern, so NaN
@@ -29,7 +30,7 @@ package forest
 //	                 (0 or 1), bins varint, seed uvarint, permutation_rows varint,
 //	                 loss string, learning_rate float, leaf_penalty float,
 //	                 holdout_fraction float, patience varint, quantile float and
-//	                 exposure string (since 3)
+//	                 exposure string (since 3), ridge float (since 5)
 //	3    features    count uvarint, then per feature: name string, kind byte (1 numeric,
 //	                 2 categorical), levels list of string, bin upper edges list of float,
 //	                 level bins list of uint16, bin counts list of float
@@ -55,6 +56,11 @@ package forest
 //	                 to class t mod K)
 //	8    adaboost    empty when the model is not AdaBoost; else α list of float and
 //	                 error list of float, one each per tree (since 4)
+//	9    linear      empty when the model is not linear; else iterations uvarint, term
+//	                 count uvarint, then per term: name string, kind byte (0 intercept,
+//	                 1 value, 2 level, 3 numeric missing, 4 categorical missing), feature uvarint, level uvarint, fill
+//	                 float, estimate float, std error float, z float, p-value float
+//	                 (since 5)
 //
 // A tree's width (the number of classes, or 1 for boosted and regression trees) and each
 // binning's kind are implied, not
@@ -72,7 +78,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 4
+	encodingVersion = 5
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -120,6 +126,7 @@ var sections = [...]section{
 	{6, "importance", 1, (*encWriter).importance, (*encReader).importance},
 	{7, "boost", 2, (*encWriter).boost, (*encReader).boost},
 	{8, "adaboost", 4, (*encWriter).adaboost, (*encReader).adaboost},
+	{9, "linear", 5, (*encWriter).linear, (*encReader).linear},
 }
 
 // MarshalBinary encodes the model in the layout described at the top of this file. It
@@ -291,6 +298,7 @@ func (w *encWriter) params(m *Model) {
 	w.varint(int64(p.Patience))
 	w.float(p.Quantile)
 	w.str(p.Exposure)
+	w.float(p.Ridge)
 }
 
 func (w *encWriter) features(m *Model) {
@@ -398,6 +406,26 @@ func (w *encWriter) adaboost(m *Model) {
 	if a := m.AdaBoost; a != nil {
 		w.floats(a.Alpha)
 		w.floats(a.Error)
+	}
+}
+
+func (w *encWriter) linear(m *Model) {
+	l := m.Linear
+	if l == nil {
+		return
+	}
+	w.uvarint(uint64(l.Iterations))
+	w.uvarint(uint64(len(l.Terms)))
+	for _, t := range l.Terms {
+		w.str(t.Name)
+		w.u8(byte(t.Kind))
+		w.uvarint(uint64(t.Feature))
+		w.uvarint(uint64(t.Level))
+		w.float(t.Fill)
+		w.float(t.Estimate)
+		w.float(t.StdError)
+		w.float(t.Z)
+		w.float(t.PValue)
 	}
 }
 
@@ -594,6 +622,10 @@ func (r *encReader) params(m *Model) {
 	}
 	p.Quantile = r.float("quantile")
 	p.Exposure = r.str("exposure")
+	if r.version < 5 {
+		return // version 4 predates the linear baseline
+	}
+	p.Ridge = r.float("ridge")
 }
 
 func (r *encReader) features(m *Model) {
@@ -637,8 +669,8 @@ func (r *encReader) trees(m *Model) {
 	}
 	minNode := 4 + 8 + 8*W // flags, left, feature, level set, cover, value
 	n := r.count("tree count", 2+minNode)
-	if r.err != nil {
-		return
+	if r.err != nil || n == 0 {
+		return // a linear model has no trees (nil, as Train leaves them)
 	}
 	m.Trees = make([]*Tree, n)
 	for b := range m.Trees {
@@ -763,6 +795,29 @@ func (r *encReader) adaboost(m *Model) {
 	m.AdaBoost = &AdaBoost{Alpha: r.floats("alpha"), Error: r.floats("error")}
 }
 
+func (r *encReader) linear(m *Model) {
+	if len(r.b) == 0 {
+		return // not linear
+	}
+	l := &Linear{Iterations: int(r.bounded("iterations", math.MaxInt32))}
+	// A term takes at least a name length, kind, feature, level and five floats.
+	n := r.count("terms", 4+5*8)
+	l.Terms = make([]Term, n)
+	for j := range l.Terms {
+		t := &l.Terms[j]
+		t.Name = r.str("term name")
+		t.Kind = TermKind(r.u8("term kind"))
+		t.Feature = int(r.bounded("term feature", math.MaxInt32))
+		t.Level = int(r.bounded("term level", math.MaxInt32))
+		t.Fill = r.float("fill")
+		t.Estimate = r.float("estimate")
+		t.StdError = r.float("std error")
+		t.Z = r.float("z")
+		t.PValue = r.float("p-value")
+	}
+	m.Linear = l
+}
+
 // checkAdaBoost checks that a model has votes exactly when its method says so, one
 // finite α > 0 and one error in [0, 1 − 1/K) per tree.
 func (m *Model) checkAdaBoost() error {
@@ -796,7 +851,7 @@ func (m *Model) checkAdaBoost() error {
 // untrusted bytes; MarshalBinary runs it so that it never writes what Decode refuses.
 func (m *Model) checkStructure() error {
 	switch m.Method {
-	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost, MethodLinear:
 	default:
 		return fmt.Errorf("unknown method %q", m.Method)
 	}
@@ -844,7 +899,10 @@ func (m *Model) checkStructure() error {
 		}
 		names[f.Name] = true
 	}
-	if len(m.Trees) == 0 {
+	if err := m.checkLinear(); err != nil {
+		return err
+	}
+	if len(m.Trees) == 0 && m.Linear == nil {
 		return errors.New("no trees")
 	}
 	for b, t := range m.Trees {

@@ -358,7 +358,9 @@ func TestEncodeRoundTrip(t *testing.T) {
 // encoded (with a new format version) and added here.
 func TestEncodeCoversEveryField(t *testing.T) {
 	want := map[reflect.Type][]string{
-		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost"},
+		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost", "Linear"},
+		reflect.TypeFor[Linear]():      {"Terms", "Iterations"},
+		reflect.TypeFor[Term]():        {"Name", "Kind", "Feature", "Level", "Fill", "Estimate", "StdError", "Z", "PValue"},
 		reflect.TypeFor[AdaBoost]():    {"Alpha", "Error"},
 		reflect.TypeFor[Boost]():       {"Loss", "InitScore", "Rounds", "BestRound", "TrainLoss", "HoldoutLoss"},
 		reflect.TypeFor[FeatureInfo](): {"Name", "Kind", "Levels", "Binning"},
@@ -371,7 +373,7 @@ func TestEncodeCoversEveryField(t *testing.T) {
 		// Threads and Progress are not stored: they never change the model.
 		reflect.TypeFor[Params](): {"Method", "Task", "Impurity", "Trees", "MaxDepth", "MinLeaf", "MinGain",
 			"FeaturesPerSplit", "RowFraction", "WithReplacement", "Bins", "Seed", "Threads", "PermutationRows", "Progress",
-			"Loss", "LearningRate", "LeafPenalty", "HoldoutFraction", "Patience", "Quantile", "Exposure"},
+			"Loss", "LearningRate", "LeafPenalty", "HoldoutFraction", "Patience", "Quantile", "Exposure", "Ridge"},
 	}
 	for typ, names := range want {
 		var have []string
@@ -450,7 +452,7 @@ func encHandSections() [][]encField {
 			{"p.bins", encSv(255)}, {"p.seed", encUv(1)}, {"p.permutation_rows", encSv(10000)},
 			{"p.loss", encStr("")}, {"p.learning_rate", encF64(0)}, {"p.leaf_penalty", encF64(0)},
 			{"p.holdout_fraction", encF64(0)}, {"p.patience", encSv(0)},
-			{"p.quantile", encF64(0)}, {"p.exposure", encStr("")}},
+			{"p.quantile", encF64(0)}, {"p.exposure", encStr("")}, {"p.ridge", encF64(0)}},
 		{{"features", encUv(1)}, {"f.name", encStr("x")}, {"f.kind", []byte{1}}, {"f.levels", encUv(0)},
 			{"f.upper", encJoin(encUv(3), encF64(1.5, math.Inf(1)))}, {"f.level_bins", encUv(0)}, {"f.counts", encJoin(encUv(4), encF64(0, 2, 2))}},
 		trees,
@@ -462,6 +464,7 @@ func encHandSections() [][]encField {
 			{"imp.permutation_std", encUv(0)}},
 		{}, // not boosted
 		{}, // not AdaBoost
+		{}, // not linear
 	}
 }
 
@@ -616,7 +619,7 @@ func TestDecodeCorruptFields(t *testing.T) {
 		}, "impurity importance: 2 values for 1 features"},
 		{"empty importance", func(s [][]encField) [][]encField { return encSet(s, "imp.permutation_std", encUv(1)) }, "permutation std importance: 0 values"},
 		{"bytes left in a section", func(s [][]encField) [][]encField { s[0] = append(s[0], encField{"extra", []byte{0}}); return s }, "section model: 1 bytes left over"},
-		{"ninth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
+		{"tenth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -846,12 +849,14 @@ func encFuzzSeeds(t testing.TB) [][]byte {
 	poisson.Loss = LossPoisson
 	ada := DefaultParams(MethodAdaBoost)
 	ada.Trees, ada.Bins = 5, 8
+	lin := DefaultParams(MethodLinear)
 	seeds := [][]byte{encMust(t, encHandModel())}
 	for _, c := range []struct {
 		d *Dataset
 		p Params
 	}{{iris.dataset(t, "species"), stump}, {mixed, small}, {mixedR, small}, {bc.dataset(t, "diagnosis"), boost},
-		{iris.dataset(t, "species"), boost}, {counts, poisson}, {iris.dataset(t, "species"), ada}} {
+		{iris.dataset(t, "species"), boost}, {counts, poisson}, {iris.dataset(t, "species"), ada},
+		{mixedR, lin}} {
 		m, err := Train(context.Background(), c.d, c.p)
 		if err != nil {
 			t.Fatal(err)

@@ -34,6 +34,8 @@ type Model struct {
 	Boost *Boost
 	// AdaBoost is set on AdaBoost models: their trees vote with weights.
 	AdaBoost *AdaBoost
+	// Linear is set on linear models (MethodLinear), which have no trees.
+	Linear *Linear
 }
 
 // Boost is what a boosted model adds: how its raw score starts and becomes a prediction,
@@ -98,6 +100,10 @@ func (m *Model) Width() int {
 // negative code) for missing values. It does not allocate.
 func (m *Model) PredictRow(row, dst []float64) []float64 {
 	dst = dst[:m.Width()]
+	if m.Linear != nil {
+		m.linearRow(row, dst)
+		return dst
+	}
 	if b := m.Boost; b != nil {
 		if K := len(b.InitScore); K > 1 {
 			// Multinomial: tree t adds to class t mod K; then the softmax.
@@ -205,6 +211,13 @@ func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int3
 	W := m.Width()
 	n := len(rows) / p
 	leaves = leaves[:n]
+	if m.Linear != nil {
+		// Row by row, the same sums as PredictRow's.
+		for i := range n {
+			m.linearRow(rows[i*p:(i+1)*p], out[i*W:(i+1)*W])
+		}
+		return
+	}
 	if b := m.Boost; b != nil && n > 0 && len(b.InitScore) > 1 {
 		// Multinomial: each row's K raw scores gather in its output, tree t adding to
 		// class t mod K in tree order as in PredictRow, then pass through the softmax.

@@ -25,6 +25,10 @@ const (
 	// misclassify and lets the trees vote with weights (classification only: Freund &
 	// Schapire 1997; SAMME, Zhu et al. 2009). Defaults: stumps, learning rate 1.
 	MethodAdaBoost Method = "adaboost"
+	// MethodLinear is the linear baseline: least squares for regression, logistic
+	// regression by IRLS for two classes, with an optional ridge penalty (see Linear).
+	// It grows no trees.
+	MethodLinear Method = "linear"
 )
 
 // Loss is the loss a boosted model minimises; it fixes the initial score and the link.
@@ -148,6 +152,9 @@ type Params struct {
 	// PermutationRows caps the out-of-bag rows per tree used for permutation
 	// importance; negative turns permutation importance off.
 	PermutationRows int
+	// Ridge is the linear baseline's penalty λ ≥ 0 on the squared coefficients, the
+	// intercept excepted (MethodLinear only; 0, the default, fits without a penalty).
+	Ridge float64
 
 	// Loss is the boosting loss; empty takes squared for regression, logistic for two
 	// classes and multinomial for more.
@@ -196,6 +203,10 @@ func DefaultParams(m Method) Params {
 		p.MaxDepth, p.WithReplacement = DefaultBoostDepth, false
 		p.LearningRate, p.Patience = DefaultLearningRate, DefaultPatience
 	}
+	if m == MethodLinear {
+		// One design matrix, no trees, no resampling, no permutation importance.
+		p.Trees, p.WithReplacement, p.PermutationRows = 1, false, -1
+	}
 	if m == MethodAdaBoost {
 		// Stumps and no shrinkage, as in Freund & Schapire (1997) and Zhu et al. (2009).
 		p.MaxDepth, p.WithReplacement, p.LearningRate = 1, false, 1
@@ -207,9 +218,15 @@ func DefaultParams(m Method) Params {
 // checks that do (features per split against the feature count) run in Train.
 func (p Params) Validate() error {
 	switch p.Method {
-	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost, MethodLinear:
 	default:
-		return fmt.Errorf("forest: method %q: want %q, %q, %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost)
+		return fmt.Errorf("forest: method %q: want %q, %q, %q, %q, %q or %q", p.Method, MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost, MethodLinear)
+	}
+	if !(p.Ridge >= 0) || math.IsInf(p.Ridge, 0) {
+		return fmt.Errorf("forest: ridge %g: want a finite number ≥ 0", p.Ridge)
+	}
+	if p.Ridge != 0 && p.Method != MethodLinear {
+		return fmt.Errorf("forest: ridge %g: only method %q takes a ridge penalty", p.Ridge, MethodLinear)
 	}
 	switch p.Task {
 	case "", Classification, Regression:

@@ -101,6 +101,8 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 		m.Trees, m.Boost, err = fr.boost(loss, threads)
 	case MethodAdaBoost:
 		m.Trees, m.AdaBoost, err = fr.adaboost(threads)
+	case MethodLinear:
+		m.Linear, err = fitLinear(d, task, p.Ridge)
 	default:
 		m.Trees, fr.inbag, err = fr.growAll(threads)
 	}
@@ -112,7 +114,10 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	}
 	// Out-of-bag results and permutation importance need bootstrap trees that each saw
 	// part of the rows; boosted trees fit each other's residuals, so neither applies.
-	bagged := p.Method != MethodTree && p.Method != MethodBoosting && p.Method != MethodAdaBoost
+	bagged := p.Method != MethodTree && p.Method != MethodBoosting && p.Method != MethodAdaBoost && p.Method != MethodLinear
+	if p.Method == MethodLinear {
+		return m, nil // no importance: the coefficients explain a linear model
+	}
 	if bagged {
 		oob, err := outOfBag(m, d, fr.inbag, threads, &stop)
 		if err != nil {

@@ -42,7 +42,13 @@ var trainOptions = []duck.Param{
 	{Name: "patience", Type: duck.Double},
 	{Name: "quantile", Type: duck.Double},
 	{Name: "exposure", Type: duck.Varchar},
+	// Linear only.
+	{Name: "ridge", Type: duck.Double},
 }
+
+// treeOptions are the options that shape trees, which method 'linear' grows none of.
+var treeOptions = []string{"trees", "max_depth", "min_leaf", "min_gain", "impurity", "features_per_split",
+	"row_fraction", "with_replacement", "bins"}
 
 // boostOptions are the options only method 'boosting' takes.
 var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience", "quantile", "exposure"}
@@ -154,11 +160,20 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		return nil, err
 	} else if ok {
 		switch m := forest.Method(strings.ToLower(v)); m {
-		case forest.MethodForest, forest.MethodBagging, forest.MethodTree, forest.MethodBoosting, forest.MethodAdaBoost:
+		case forest.MethodForest, forest.MethodBagging, forest.MethodTree, forest.MethodBoosting, forest.MethodAdaBoost, forest.MethodLinear:
 			method = m
 		default:
-			return nil, fail("method %q: want 'forest', 'bagging', 'tree', 'boosting' or 'adaboost'", v)
+			return nil, fail("method %q: want 'forest', 'bagging', 'tree', 'boosting', 'adaboost' or 'linear'", v)
 		}
+	}
+	if method == forest.MethodLinear {
+		for _, opt := range append(slices.Clone(treeOptions), boostOptions...) {
+			if named[opt] != nil {
+				return nil, fail("%s: method 'linear' does not take it: it fits coefficients, not trees; it takes ridge", opt)
+			}
+		}
+	} else if named["ridge"] != nil {
+		return nil, fail("ridge: method '%s' does not take it; it applies to method := 'linear'", method)
 	}
 	// An option the method does not use would be silently ignored: refuse it instead.
 	if method == forest.MethodBoosting {
@@ -179,7 +194,7 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 					"it takes trees, max_depth and learning_rate", opt)
 			}
 		}
-	} else {
+	} else if method != forest.MethodLinear {
 		for _, opt := range boostOptions {
 			if named[opt] != nil {
 				if opt == "learning_rate" {
@@ -248,7 +263,7 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		{"features_per_split", nil, &p.FeaturesPerSplit}, {"row_fraction", nil, &p.RowFraction},
 		{"learning_rate", nil, &p.LearningRate}, {"leaf_penalty", nil, &p.LeafPenalty},
 		{"holdout_fraction", nil, &p.HoldoutFraction}, {"patience", &p.Patience, nil},
-		{"quantile", nil, &p.Quantile},
+		{"quantile", nil, &p.Quantile}, {"ridge", nil, &p.Ridge},
 	} {
 		var err error
 		if o.i != nil {

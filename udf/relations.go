@@ -19,14 +19,15 @@ import (
 // tree trains on every row, so no row is out of its bag.
 var ErrNoOOB = errors.New("model has no out-of-bag results")
 
-// registerRelations registers copse_importance, copse_oob and copse_curve: table
-// functions over what a model stores, so they can be joined and filtered in SQL.
+// registerRelations registers copse_importance, copse_oob, copse_curve and
+// copse_coefficients: table functions over what a model stores, so they can be joined and filtered in SQL.
 func (h *Host) registerRelations(conn *sql.Conn) error {
 	for _, f := range []duck.TableFunc{
 		{Name: "copse_importance", Args: []duck.Type{duck.Varchar},
 			Named: []duck.Param{{Name: "method", Type: duck.Varchar}}, Bind: h.bindImportance},
 		{Name: "copse_oob", Args: []duck.Type{duck.Varchar}, Bind: h.bindOOB},
 		{Name: "copse_curve", Args: []duck.Type{duck.Varchar}, Bind: h.bindCurve},
+		{Name: "copse_coefficients", Args: []duck.Type{duck.Varchar}, Bind: h.bindCoefficients},
 	} {
 		if err := duck.RegisterTable(conn, f); err != nil {
 			return err
@@ -84,6 +85,10 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 	if v, ok := call.Named["method"]; ok {
 		s, _ := v.(string)
 		kind = forest.ImportanceKind(strings.ToLower(s)) // as copse_train's method and task
+	}
+	if m.Linear != nil {
+		return nil, fmt.Errorf("%s: model %q (version %d), method linear, has no feature importance: a linear model is explained by its coefficients; use copse_coefficients('%s')",
+			fn, e.Name, e.Version, sqlEscape(e.Name))
 	}
 	var imp, std []float64
 	switch kind {
@@ -325,6 +330,36 @@ func boostCurve(fn string, b *forest.Boost, e Entry) (*duck.TableBinding, error)
 					out.SetString(1, j, curveHoldoutLoss)
 					setFloat(out, 2, j, b.HoldoutLoss[r])
 				}
+			}), nil
+		},
+	}, nil
+}
+
+// bindCoefficients: copse_coefficients(model) → term, estimate, std_error, z, p_value: one
+// row per term of a linear model, in the model's order (the intercept first). z is t for
+// least squares; std_error, z and p_value are NULL for a ridge fit.
+func (h *Host) bindCoefficients(call duck.TableCall) (*duck.TableBinding, error) {
+	const fn = "copse_coefficients"
+	m, e, _, err := h.relationModel(fn, call)
+	if err != nil {
+		return nil, err
+	}
+	l := m.Linear
+	if l == nil {
+		return nil, fmt.Errorf("%s: model %q (version %d), method %s, has no coefficients: only method := 'linear' fits them; use copse_importance",
+			fn, e.Name, e.Version, m.Method)
+	}
+	return &duck.TableBinding{
+		Columns: []duck.Column{{Name: "term", Type: duck.Varchar}, {Name: "estimate", Type: duck.Double},
+			{Name: "std_error", Type: duck.Double}, {Name: "z", Type: duck.Double}, {Name: "p_value", Type: duck.Double}},
+		Init: func() (duck.FillFunc, error) {
+			return rowsFill(len(l.Terms), func(out *duck.Chunk, j, r int) {
+				t := &l.Terms[r]
+				out.SetString(0, j, t.Name)
+				setFloat(out, 1, j, t.Estimate)
+				setFloat(out, 2, j, t.StdError)
+				setFloat(out, 3, j, t.Z)
+				setFloat(out, 4, j, t.PValue)
 			}), nil
 		},
 	}, nil

@@ -324,6 +324,13 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 			}
 		}
 	}
+	if l := m.Linear; l != nil {
+		for _, t := range l.Terms {
+			if t.Kind != forest.TermIntercept {
+				used[t.Feature] = true
+			}
+		}
+	}
 	exact := make(map[string]int, len(row.Fields))
 	folded := make(map[string][]int, len(row.Fields))
 	for i, f := range row.Fields {

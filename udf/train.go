@@ -100,7 +100,7 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 	p.Progress = func(done, total int) {
 		h.jobs.update(job, func(j *Job) {
 			j.TreesDone, j.Trees = done, total
-			bagged := p.Method != forest.MethodTree && p.Method != forest.MethodBoosting && p.Method != forest.MethodAdaBoost
+			bagged := p.Method != forest.MethodTree && p.Method != forest.MethodBoosting && p.Method != forest.MethodAdaBoost && p.Method != forest.MethodLinear
 			if done == total && bagged {
 				j.Stage = "out-of-bag" // the out-of-bag pass and permutation importance follow
 			}
