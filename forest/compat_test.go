@@ -88,10 +88,10 @@ func TestDecodeVersion2(t *testing.T) {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
 	// Today's encoding adds 17 bytes to the params section (the quantile float, an
-	// empty exposure string and the ridge float) and empty sections 8 and 9 (tag and
-	// length: 2 bytes each).
-	if len(b) != len(old)+17+2+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+17+2+2)
+	// empty exposure string and the ridge float) and empty sections 8, 9 and 10 (tag
+	// and length: 2 bytes each).
+	if len(b) != len(old)+17+2+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+17+2+2+2)
 	}
 	m3, err := Decode(b)
 	if err != nil {
@@ -126,10 +126,10 @@ func TestDecodeVersion3(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds the ridge float to the params section and empty sections 8
-	// and 9: a tag and a zero length each.
-	if len(b) != len(old)+8+2+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2)
+	// Today's encoding adds the ridge float to the params section and empty sections 8,
+	// 9 and 10: a tag and a zero length each.
+	if len(b) != len(old)+8+2+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2+2)
 	}
 	m4, err := Decode(b)
 	if err != nil {
@@ -171,10 +171,10 @@ func TestDecodeVersion4(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds the ridge float to the params section and an empty section
-	// 9: its tag and a zero length.
-	if len(b) != len(old)+8+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2)
+	// Today's encoding adds the ridge float to the params section and empty sections 9
+	// and 10: a tag and a zero length each.
+	if len(b) != len(old)+8+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2)
 	}
 	m5, err := Decode(b)
 	if err != nil {
@@ -188,4 +188,47 @@ func TestDecodeVersion4(t *testing.T) {
 	encSameFloats(t, "Predict", b4, b5)
 	encSameFloats(t, "PredictRow", r4, r5)
 	encSameFloats(t, "Predict against PredictRow", b4, r4)
+}
+
+// A model written in format version 5 (before blends) still decodes, scores as before,
+// and re-encodes in today's version to the same model with no blend record.
+// testdata/models/mixed-linear.v5.cpsm is the "mixed-linear" fuzz seed as the version-5
+// encoder wrote it (copied before the encoder moved to version 6).
+func TestDecodeVersion5(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/mixed-linear.v5.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 5 {
+		t.Fatalf("fixture is format version %d, want 5", old[4])
+	}
+	m5, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 5: %v", err)
+	}
+	if m5.Linear == nil || m5.Blend != nil {
+		t.Fatalf("version 5 model: linear %v, blend %v", m5.Linear != nil, m5.Blend != nil)
+	}
+	b, err := m5.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion {
+		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
+	}
+	// Today's encoding adds an empty section 10: its tag and a zero length.
+	if len(b) != len(old)+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+2)
+	}
+	m6, err := Decode(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	encSameModel(t, m5, m6)
+	_, x := encMixedData(t, 60, true)
+	b5, r5 := encPredictions(t, m5, x)
+	b6, r6 := encPredictions(t, m6, x)
+	encSameFloats(t, "Predict", b5, b6)
+	encSameFloats(t, "PredictRow", r5, r6)
+	encSameFloats(t, "Predict against PredictRow", b5, r5)
 }

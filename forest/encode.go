@@ -1,16 +1,16 @@
 package forest
 
-// The binary model encoding, format version 5. It holds everything scoring and explaining
+// The binary model encoding, format version 6. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
 // Decode also reads version 1 (before boosting: no section 7, no boosting controls) and
-// version 2 (no quantile control), version 3 (no section 8) and version 4 (no section 9,
-// no ridge control), so models stored by
+// version 2 (no quantile control), version 3 (no section 8), version 4 (no section 9,
+// no ridge control) and version 5 (no section 10), so models stored by
 // earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 5
-//	6       sections  the nine below, in tag order, each: tag byte, body length uvarint, body
+//	4       version   uint16, 6
+//	6       sections  the ten below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
 // Fixed-width numbers are little-endian; a float is its full 64-bit IEEE pattern, so NaN
@@ -61,6 +61,10 @@ package forest
 //	                 1 value, 2 level, 3 numeric missing, 4 categorical missing), feature uvarint, level uvarint, fill
 //	                 float, estimate float, std error float, z float, p-value float
 //	                 (since 5)
+//	10   blend       empty when the model is not a blend; else rule string, member
+//	                 names list of string, weights list of float, member count uvarint,
+//	                 then per member its whole encoding (this version, never itself a
+//	                 blend) as a string (since 6)
 //
 // A tree's width (the number of classes, or 1 for boosted and regression trees) and each
 // binning's kind are implied, not
@@ -78,7 +82,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 5
+	encodingVersion = 6
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -117,16 +121,22 @@ type section struct {
 	read  func(*encReader, *Model)
 }
 
-var sections = [...]section{
-	{1, "model", 1, (*encWriter).model, (*encReader).model},
-	{2, "params", 1, (*encWriter).params, (*encReader).params},
-	{3, "features", 1, (*encWriter).features, (*encReader).features},
-	{4, "trees", 1, (*encWriter).trees, (*encReader).trees},
-	{5, "oob", 1, (*encWriter).oob, (*encReader).oob},
-	{6, "importance", 1, (*encWriter).importance, (*encReader).importance},
-	{7, "boost", 2, (*encWriter).boost, (*encReader).boost},
-	{8, "adaboost", 4, (*encWriter).adaboost, (*encReader).adaboost},
-	{9, "linear", 5, (*encWriter).linear, (*encReader).linear},
+// sections is filled in by init: a blend's section encodes and decodes whole models.
+var sections [10]section
+
+func init() {
+	sections = [...]section{
+		{1, "model", 1, (*encWriter).model, (*encReader).model},
+		{2, "params", 1, (*encWriter).params, (*encReader).params},
+		{3, "features", 1, (*encWriter).features, (*encReader).features},
+		{4, "trees", 1, (*encWriter).trees, (*encReader).trees},
+		{5, "oob", 1, (*encWriter).oob, (*encReader).oob},
+		{6, "importance", 1, (*encWriter).importance, (*encReader).importance},
+		{7, "boost", 2, (*encWriter).boost, (*encReader).boost},
+		{8, "adaboost", 4, (*encWriter).adaboost, (*encReader).adaboost},
+		{9, "linear", 5, (*encWriter).linear, (*encReader).linear},
+		{10, "blend", 6, (*encWriter).blend, (*encReader).blend},
+	}
 }
 
 // MarshalBinary encodes the model in the layout described at the top of this file. It
@@ -219,6 +229,9 @@ func decode(b []byte) (*Model, error) {
 	}
 	if err := m.checkStructure(); err != nil {
 		return nil, err
+	}
+	if m.Blend != nil {
+		m.Blend.prepare(m)
 	}
 	return m, nil
 }
@@ -426,6 +439,20 @@ func (w *encWriter) linear(m *Model) {
 		w.float(t.StdError)
 		w.float(t.Z)
 		w.float(t.PValue)
+	}
+}
+
+func (w *encWriter) blend(m *Model) {
+	b := m.Blend
+	if b == nil {
+		return
+	}
+	w.str(string(b.Rule))
+	w.strs(b.Names)
+	w.floats(b.Weights)
+	w.uvarint(uint64(len(b.Members)))
+	for _, mem := range b.Members {
+		w.str(string(mem.encode()))
 	}
 }
 
@@ -818,6 +845,33 @@ func (r *encReader) linear(m *Model) {
 	m.Linear = l
 }
 
+func (r *encReader) blend(m *Model) {
+	if len(r.b) == 0 {
+		return // not a blend
+	}
+	b := &Blend{Rule: BlendRule(r.str("rule")), Names: r.strs("member names"), Weights: r.floats("weights")}
+	// A member's encoding takes at least its length, head and checksum.
+	n := r.count("members", 1+encodingHead+encodingSum)
+	b.Members = make([]*Model, n)
+	for j := range b.Members {
+		enc := r.str("member")
+		if r.err != nil {
+			break
+		}
+		if len(enc) >= encodingHead && binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])) != encodingVersion {
+			r.fail("member %d: format version %d inside a version %d blend", j, binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])), encodingVersion)
+			break
+		}
+		mem, err := decode([]byte(enc))
+		if err != nil {
+			r.fail("member %d: %v", j, err)
+			break
+		}
+		b.Members[j] = mem
+	}
+	m.Blend = b
+}
+
 // checkAdaBoost checks that a model has votes exactly when its method says so, one
 // finite α > 0 and one error in [0, 1 − 1/K) per tree.
 func (m *Model) checkAdaBoost() error {
@@ -851,7 +905,7 @@ func (m *Model) checkAdaBoost() error {
 // untrusted bytes; MarshalBinary runs it so that it never writes what Decode refuses.
 func (m *Model) checkStructure() error {
 	switch m.Method {
-	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost, MethodLinear:
+	case MethodTree, MethodBagging, MethodForest, MethodBoosting, MethodAdaBoost, MethodLinear, MethodBlend:
 	default:
 		return fmt.Errorf("unknown method %q", m.Method)
 	}
@@ -902,7 +956,10 @@ func (m *Model) checkStructure() error {
 	if err := m.checkLinear(); err != nil {
 		return err
 	}
-	if len(m.Trees) == 0 && m.Linear == nil {
+	if err := m.checkBlend(); err != nil {
+		return err
+	}
+	if len(m.Trees) == 0 && m.Linear == nil && m.Blend == nil {
 		return errors.New("no trees")
 	}
 	for b, t := range m.Trees {

@@ -358,7 +358,9 @@ func TestEncodeRoundTrip(t *testing.T) {
 // encoded (with a new format version) and added here.
 func TestEncodeCoversEveryField(t *testing.T) {
 	want := map[reflect.Type][]string{
-		reflect.TypeFor[Model]():       {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost", "Linear"},
+		reflect.TypeFor[Model](): {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost", "Linear", "Blend"},
+		// index and scratch are derived from the members when a blend is built or decoded.
+		reflect.TypeFor[Blend]():       {"Rule", "Members", "Names", "Weights", "index", "scratch"},
 		reflect.TypeFor[Linear]():      {"Terms", "Iterations"},
 		reflect.TypeFor[Term]():        {"Name", "Kind", "Feature", "Level", "Fill", "Estimate", "StdError", "Z", "PValue"},
 		reflect.TypeFor[AdaBoost]():    {"Alpha", "Error"},
@@ -465,6 +467,7 @@ func encHandSections() [][]encField {
 		{}, // not boosted
 		{}, // not AdaBoost
 		{}, // not linear
+		{}, // not a blend
 	}
 }
 
@@ -619,7 +622,7 @@ func TestDecodeCorruptFields(t *testing.T) {
 		}, "impurity importance: 2 values for 1 features"},
 		{"empty importance", func(s [][]encField) [][]encField { return encSet(s, "imp.permutation_std", encUv(1)) }, "permutation std importance: 0 values"},
 		{"bytes left in a section", func(s [][]encField) [][]encField { s[0] = append(s[0], encField{"extra", []byte{0}}); return s }, "section model: 1 bytes left over"},
-		{"tenth section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
+		{"eleventh section", func(s [][]encField) [][]encField { return append(s, nil) }, "2 bytes after the last section"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -863,7 +866,20 @@ func encFuzzSeeds(t testing.TB) [][]byte {
 		}
 		seeds = append(seeds, encMust(t, m))
 	}
-	return seeds
+	// A blend of the mixed regression forest and the linear model (seeds 3 and 8).
+	var members []*Model
+	for _, s := range []int{3, 8} {
+		m, err := Decode(seeds[s])
+		if err != nil {
+			t.Fatal(err)
+		}
+		members = append(members, m)
+	}
+	b, err := NewBlend("y", members, []string{"mixed_forest@1", "mixed_linear@2"}, []float64{3, 1}, BlendAverage)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return append(seeds, encMust(t, b))
 }
 
 // The seed files in testdata/fuzz/FuzzDecode named seed-* must stay valid encodings, so

@@ -36,6 +36,8 @@ type Model struct {
 	AdaBoost *AdaBoost
 	// Linear is set on linear models (MethodLinear), which have no trees.
 	Linear *Linear
+	// Blend is set on blends (MethodBlend), which have no trees of their own.
+	Blend *Blend
 }
 
 // Boost is what a boosted model adds: how its raw score starts and becomes a prediction,
@@ -100,6 +102,10 @@ func (m *Model) Width() int {
 // negative code) for missing values. It does not allocate.
 func (m *Model) PredictRow(row, dst []float64) []float64 {
 	dst = dst[:m.Width()]
+	if m.Blend != nil {
+		m.blendRow(row, dst)
+		return dst
+	}
 	if m.Linear != nil {
 		m.linearRow(row, dst)
 		return dst
@@ -211,6 +217,13 @@ func (m *Model) PredictBlock(rows []float64, p int, out []float64, leaves []int3
 	W := m.Width()
 	n := len(rows) / p
 	leaves = leaves[:n]
+	if m.Blend != nil {
+		// Row by row, the same sums as PredictRow's.
+		for i := range n {
+			m.blendRow(rows[i*p:(i+1)*p], out[i*W:(i+1)*W])
+		}
+		return
+	}
 	if m.Linear != nil {
 		// Row by row, the same sums as PredictRow's.
 		for i := range n {

@@ -65,6 +65,7 @@ func New(ctx context.Context, db *sql.DB) (*Host, error) {
 		h.registerTraining,
 		h.registerScoring,
 		h.registerRelations,
+		h.registerBlends,
 	} {
 		if err := register(conn); err != nil {
 			return nil, fmt.Errorf("udf: register: %w", err)

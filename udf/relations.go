@@ -90,6 +90,10 @@ func (h *Host) bindImportance(call duck.TableCall) (*duck.TableBinding, error) {
 		return nil, fmt.Errorf("%s: model %q (version %d), method linear, has no feature importance: a linear model is explained by its coefficients; use copse_coefficients('%s')",
 			fn, e.Name, e.Version, sqlEscape(e.Name))
 	}
+	if m.Blend != nil {
+		return nil, fmt.Errorf("%s: model %q (version %d), method blend, has no feature importance of its own: see its members with copse_members('%s')",
+			fn, e.Name, e.Version, sqlEscape(e.Name))
+	}
 	var imp, std []float64
 	switch kind {
 	case forest.ImpurityImportance:

@@ -324,6 +324,12 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 			}
 		}
 	}
+	if m.Blend != nil {
+		// A blend's members use its features in their own ways: read every one.
+		for f := range used {
+			used[f] = true
+		}
+	}
 	if l := m.Linear; l != nil {
 		for _, t := range l.Terms {
 			if t.Kind != forest.TermIntercept {
