@@ -124,6 +124,9 @@ func (h *Host) blend(ctx context.Context, c *blendCall) (Entry, error) {
 	members := make([]*forest.Model, len(c.members))
 	names := make([]string, len(c.members))
 	target := ""
+	// kinds: each member feature's recorded source kind, by name; the first member
+	// recording one wins.
+	kinds := map[string]string{}
 	for j, ref := range c.members {
 		m, e, err := h.loadModel(ctx, ref)
 		if err != nil {
@@ -135,12 +138,26 @@ func (h *Host) blend(ctx context.Context, c *blendCall) (Entry, error) {
 			return Entry{}, fmt.Errorf("%s %q: member '%s' predicts %q, the first member %q", fn, c.name, sqlEscape(ref), m.Target, target)
 		}
 		members[j], names[j] = m, fmt.Sprintf("%s@%d", e.Name, e.Version)
+		if len(e.FeatureTypes) == len(m.Features) {
+			for i, f := range m.Features {
+				if k := e.FeatureTypes[i]; k != "" && kinds[f.Name] == "" {
+					kinds[f.Name] = k
+				}
+			}
+		}
 	}
 	b, err := forest.NewBlend(target, members, names, c.weights, c.rule)
 	if err != nil {
 		return Entry{}, fmt.Errorf("%s %q: %w", fn, c.name, err)
 	}
-	e, err := h.saveModel(ctx, c.name, b, "blend of "+strings.Join(names, ", "), nil, nil, nil)
+	var types []string // nil: no member recorded any kind
+	if len(kinds) > 0 {
+		types = make([]string, len(b.Features))
+		for i, f := range b.Features {
+			types[i] = kinds[f.Name] // "": not known, stored as NULL
+		}
+	}
+	e, err := h.saveModel(ctx, c.name, b, "blend of "+strings.Join(names, ", "), nil, nil, nil, types)
 	if err != nil {
 		return Entry{}, fmt.Errorf("%s %q: %w", fn, c.name, err)
 	}

@@ -41,7 +41,21 @@ type Entry struct {
 	CreatedAt time.Time
 	SizeBytes int64
 	Source    string
+	// FeatureTypes is each model feature's source kind at training time, in model
+	// feature order ('number', 'boolean', 'date', 'timestamp', 'text', 'enum'; "" when
+	// not known); nil for models saved without it.
+	FeatureTypes []string
 }
+
+// Feature kinds the catalog records, by the source column each feature was trained from.
+const (
+	featNumber    = "number"
+	featBoolean   = "boolean"
+	featDate      = "date"
+	featTimestamp = "timestamp"
+	featText      = "text"
+	featEnum      = "enum"
+)
 
 func (h *Host) createCatalog(ctx context.Context) error {
 	_, err := h.db.ExecContext(ctx, `
@@ -68,7 +82,8 @@ CREATE TABLE IF NOT EXISTS `+catalogTable+` (
 	row_actual VARCHAR[],
 	model      BLOB NOT NULL,
 	PRIMARY KEY (name, version)
-)`)
+);
+ALTER TABLE `+catalogTable+` ADD COLUMN IF NOT EXISTS feature_types VARCHAR[]`)
 	if err != nil {
 		return fmt.Errorf("udf: create catalog %s: %w", catalogTable, err)
 	}
@@ -119,8 +134,9 @@ func validModelName(name string) error {
 // saveModel writes a new version of name in one transaction on a pooled connection and
 // returns its entry. keys (the training rows' key values, nil for none; keyNull marks
 // the NULL ones, nil when none is) and actuals (their target values as text, nil for
-// none) back copse_oob.
-func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, source string, keys []string, keyNull []bool, actuals []string) (Entry, error) {
+// none) back copse_oob. featureTypes is each feature's source kind, in model feature
+// order (nil: not known; "" entries are stored as NULL).
+func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, source string, keys []string, keyNull []bool, actuals []string, featureTypes []string) (Entry, error) {
 	blob, err := m.MarshalBinary()
 	if err != nil {
 		return Entry{}, fmt.Errorf("encode model %q: %w", name, err)
@@ -143,6 +159,14 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 	if actuals != nil {
 		rowActual = actuals
 	}
+	if featureTypes != nil && len(featureTypes) != len(m.Features) {
+		return Entry{}, fmt.Errorf("save model %q: %d feature types for %d features", name, len(featureTypes), len(m.Features))
+	}
+	var featTypes any
+	if featureTypes != nil {
+		featTypes = featureTypes
+		e.FeatureTypes = featureTypes
+	}
 	h.saveMu.Lock()
 	defer h.saveMu.Unlock()
 	tx, err := h.db.BeginTx(ctx, nil)
@@ -163,9 +187,9 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 	_, err = tx.ExecContext(ctx, `INSERT INTO `+catalogTable+` VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?,
 		CASE WHEN ?::BOOLEAN[] IS NULL THEN ?::VARCHAR[]
 		     ELSE list_transform(?::VARCHAR[], (k, i) -> CASE WHEN (?::BOOLEAN[])[i] THEN NULL ELSE k END) END,
-		?, ?)`,
+		?, ?, CASE WHEN ?::VARCHAR[] IS NULL THEN NULL ELSE list_transform(?::VARCHAR[], t -> nullif(t, '')) END)`,
 		e.Name, e.Version, e.Method, e.Task, e.Target, e.Rows, e.Features, e.Trees, oobMetric, oobValue,
-		e.CreatedAt, e.SizeBytes, e.Source, rowKeyNull, rowKeys, rowKeys, rowKeyNull, rowActual, blob)
+		e.CreatedAt, e.SizeBytes, e.Source, rowKeyNull, rowKeys, rowKeys, rowKeyNull, rowActual, blob, featTypes, featTypes)
 	if err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
@@ -200,19 +224,26 @@ func (h *Host) resolve(ctx context.Context, ref string) (Entry, error) {
 	if err != nil {
 		return Entry{}, err
 	}
-	q := `SELECT ` + entryColumns + ` FROM ` + catalogTable + ` WHERE name = ?`
+	q := `SELECT ` + entryColumns + `, feature_types FROM ` + catalogTable + ` WHERE name = ?`
 	args := []any{r.name}
 	if r.version > 0 {
 		q += ` AND version = ?`
 		args = append(args, r.version)
 	}
 	q += ` ORDER BY version DESC LIMIT 1`
-	e, err := scanEntry(h.db.QueryRowContext(ctx, q, args...))
+	var types any
+	e, err := scanEntry(h.db.QueryRowContext(ctx, q, args...), &types)
 	if errors.Is(err, sql.ErrNoRows) {
 		return Entry{}, fmt.Errorf("%w: %q", ErrNoModel, r.String())
 	}
 	if err != nil {
 		return Entry{}, fmt.Errorf("look up model %q: %w", r.String(), err)
+	}
+	if list, ok := types.([]any); ok {
+		e.FeatureTypes = make([]string, len(list))
+		for i, t := range list {
+			e.FeatureTypes[i], _ = t.(string) // NULL: not known
+		}
 	}
 	return e, nil
 }

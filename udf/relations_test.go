@@ -125,7 +125,7 @@ func TestRelationsOOB(t *testing.T) {
 		for i := range keys {
 			keys[i] = "k" + strconv.Itoa(i)
 		}
-		if _, err := h.saveModel(context.Background(), name+"_keyed", m, "test", keys, nil, nil); err != nil {
+		if _, err := h.saveModel(context.Background(), name+"_keyed", m, "test", keys, nil, nil, nil); err != nil {
 			t.Fatal(err)
 		}
 		rows, err := h.db.Query("SELECT key, actual, predicted, probability, trees_voting FROM copse_oob(?)", name+"_keyed")

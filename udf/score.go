@@ -311,6 +311,31 @@ type scratch struct {
 // maxChunk is DuckDB's vector size (STANDARD_VECTOR_SIZE): no chunk has more rows.
 const maxChunk = 2048
 
+// checkTemporal refuses a DATE field for a feature trained from a TIMESTAMP column, and
+// the reverse: one counts days, the other seconds. Without a recorded kind (models saved
+// before kinds were recorded) anything numeric goes, as before.
+func checkTemporal(label, feature string, kinds []string, fi int, f duck.Field) error {
+	if fi >= len(kinds) {
+		return nil
+	}
+	var given, cast string
+	switch f.Type.ID {
+	case mapping.TypeDate:
+		given, cast = featDate, "TIMESTAMP"
+	case mapping.TypeTimestamp, mapping.TypeTimestampS, mapping.TypeTimestampMS, mapping.TypeTimestampNS, mapping.TypeTimestampTZ:
+		given, cast = featTimestamp, "DATE"
+	default:
+		return nil
+	}
+	trained := kinds[fi]
+	if (trained != featDate && trained != featTimestamp) || trained == given {
+		return nil
+	}
+	return fmt.Errorf("%w: model %s: feature %q was trained from a %s column (%s), but row field %q is %v; cast it, e.g. CAST(%s AS %s)",
+		ErrRow, label, feature, strings.ToUpper(trained), map[string]string{featDate: "days", featTimestamp: "seconds"}[trained],
+		f.Name, f.Type, quoteIdent(f.Name), cast)
+}
+
 // newScorer maps the row's fields to the model's features: by exact name first, then
 // ignoring case; other fields are ignored.
 func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
@@ -363,6 +388,9 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 		case f.Type.ID == mapping.TypeSQLNull:
 			in.kind = inNull // every value NULL: missing, as the NULL policy says
 		case feat.Kind == forest.Numeric && f.Type.Numeric():
+			if err := checkTemporal(s.label, feat.Name, e.FeatureTypes, fi, f); err != nil {
+				return nil, err
+			}
 			in.kind = inNumber
 		case feat.Kind == forest.Categorical && f.Type.ID == mapping.TypeVarchar:
 			in.kind = inText

@@ -119,7 +119,7 @@ func trainOn(t testing.TB, h *Host, name, q, target string, p forest.Params) *fo
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := h.saveModel(context.Background(), name, m, q, nil, nil, nil); err != nil {
+	if _, err := h.saveModel(context.Background(), name, m, q, nil, nil, nil, nil); err != nil {
 		t.Fatal(err)
 	}
 	return m

@@ -444,6 +444,27 @@ type trainingData struct {
 	keyNull []bool   // which keys are NULL; nil when none is
 	actuals []string // the target of each row trained on, as text, for copse_oob
 	skipped int      // rows left out for a NULL target
+	// featureTypes is each feature's source kind, by feature name.
+	featureTypes map[string]string
+}
+
+// featureKind is the kind the catalog records for a feature read from r.
+func featureKind(r *duck.ResultColumn, info srcColumn) string {
+	switch {
+	case r.Codes != nil && info.enum:
+		return featEnum
+	case r.Codes != nil:
+		return featText
+	}
+	switch r.Type.ID {
+	case mapping.TypeBoolean:
+		return featBoolean
+	case mapping.TypeDate:
+		return featDate
+	case mapping.TypeTimestamp, mapping.TypeTimestampS, mapping.TypeTimestampMS, mapping.TypeTimestampNS, mapping.TypeTimestampTZ:
+		return featTimestamp
+	}
+	return featNumber
 }
 
 // readTraining reads the source on a pooled connection and builds the engine's data set.
@@ -668,6 +689,10 @@ func (c *trainCall) build(l *layout, byCol []*duck.ResultColumn) (*trainingData,
 		if err != nil {
 			return nil, fail("%w", err)
 		}
+		if out.featureTypes == nil {
+			out.featureTypes = map[string]string{}
+		}
+		out.featureTypes[info.name] = featureKind(r, info)
 	}
 	return out, nil
 }

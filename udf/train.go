@@ -111,7 +111,11 @@ func (h *Host) train(ctx context.Context, c *trainCall) (trainResult, error) {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}
 	h.jobs.update(job, func(j *Job) { j.Stage = "saving" })
-	e, err := h.saveModel(ctx, c.name, m, c.source, data.keys, data.keyNull, data.actuals)
+	types := make([]string, len(m.Features))
+	for i, f := range m.Features {
+		types[i] = data.featureTypes[f.Name]
+	}
+	e, err := h.saveModel(ctx, c.name, m, c.source, data.keys, data.keyNull, data.actuals, types)
 	if err != nil {
 		return trainResult{}, fmt.Errorf("copse_train %q: %w", c.name, err)
 	}
