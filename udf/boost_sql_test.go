@@ -2,7 +2,6 @@ package udf
 
 import (
 	"database/sql"
-	"encoding/csv"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -35,33 +34,7 @@ func bsRegressionCSV(t testing.TB, file, target string) *forest.Dataset {
 // bsRegressionCSVAt is bsRegressionCSV on a file at any path.
 func bsRegressionCSVAt(t testing.TB, file, target string) *forest.Dataset {
 	t.Helper()
-	f, err := os.Open(file)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	recs, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	d := forest.NewDataset(len(recs) - 1)
-	for j, name := range recs[0] {
-		vals := make([]float64, len(recs)-1)
-		for i, r := range recs[1:] {
-			if vals[i], err = strconv.ParseFloat(r[j], 64); err != nil {
-				t.Fatalf("%s row %d column %s: %v", file, i+1, name, err)
-			}
-		}
-		if name == target {
-			err = d.SetRegressionTarget(name, vals)
-		} else {
-			err = d.AddNumeric(name, vals)
-		}
-		if err != nil {
-			t.Fatal(err)
-		}
-	}
-	return d
+	return csvDataset(t, file, target, false)
 }
 
 // bsTrain trains from SQL and returns copse_train's row as text (NULL as "NULL"), by

@@ -712,7 +712,15 @@ func TestTrainColumnTypes(t *testing.T) {
 // column but target is numeric (strconv.ParseFloat), target holds class names.
 func trCSV(t testing.TB, file, target string) *forest.Dataset {
 	t.Helper()
-	f, err := os.Open(filepath.Join("..", "testdata", file))
+	return csvDataset(t, filepath.Join("..", "testdata", file), target, true)
+}
+
+// csvDataset reads a CSV file in Go, independently of DuckDB: every column but target is
+// numeric (strconv.ParseFloat); target holds class names when classes is set, else
+// numbers for regression.
+func csvDataset(t testing.TB, path, target string, classes bool) *forest.Dataset {
+	t.Helper()
+	f, err := os.Open(path)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -723,7 +731,7 @@ func trCSV(t testing.TB, file, target string) *forest.Dataset {
 	}
 	d := forest.NewDataset(len(recs) - 1)
 	for j, name := range recs[0] {
-		if name == target {
+		if name == target && classes {
 			var labels []string
 			for _, r := range recs[1:] {
 				labels = append(labels, r[j])
@@ -737,10 +745,15 @@ func trCSV(t testing.TB, file, target string) *forest.Dataset {
 		vals := make([]float64, len(recs)-1)
 		for i, r := range recs[1:] {
 			if vals[i], err = strconv.ParseFloat(r[j], 64); err != nil {
-				t.Fatalf("%s row %d column %s: %v", file, i+1, name, err)
+				t.Fatalf("%s row %d column %s: %v", path, i+1, name, err)
 			}
 		}
-		if err := d.AddNumeric(name, vals); err != nil {
+		if name == target {
+			err = d.SetRegressionTarget(name, vals)
+		} else {
+			err = d.AddNumeric(name, vals)
+		}
+		if err != nil {
 			t.Fatal(err)
 		}
 	}
