@@ -21,18 +21,22 @@ const (
 	// probabilities (soft voting) or values.
 	BlendAverage BlendRule = "average"
 	// BlendVote is hard voting (classification only): each member casts its weight for
-	// its most probable class; the prediction holds the weighted vote shares.
+	// its most probable class; the prediction holds the weighted vote shares. Learned
+	// weights (FitBlendWeights) are fitted on the averaged probabilities, as for
+	// BlendAverage: hard votes have no smooth loss to fit.
 	BlendVote BlendRule = "vote"
 )
 
 // Blend is what a blend adds to a Model: its members, embedded whole so the blend keeps
 // scoring after a member is dropped or retrained elsewhere, their display names
-// (name@version), their weights (≥ 0, summing to 1) and the rule.
+// (name@version), their weights (≥ 0, summing to 1) and the rule. Fitted records the
+// rows learned weights were fitted on (FitBlendWeights); nil when the weights were given.
 type Blend struct {
 	Rule    BlendRule
 	Members []*Model
 	Names   []string
 	Weights []float64
+	Fitted  *FittedOn
 
 	// index[j][f] is the position in the blend's row of member j's feature f; derived
 	// from the members and the blend's features, never stored.
@@ -193,6 +197,9 @@ func (m *Model) checkBlend() error {
 	if !(sum > 0) || math.IsInf(sum, 0) {
 		return fmt.Errorf("blend weights sum to %v", sum)
 	}
+	if err := b.checkFitted(m.Task); err != nil {
+		return err
+	}
 	feats, err := b.union()
 	if err != nil {
 		return err
@@ -255,4 +262,32 @@ func (m *Model) blendRow(row, dst []float64) {
 		}
 	}
 	blendScratch.Put(buf)
+}
+
+// checkFitted checks a blend's fit record: the task's loss, at least one row, finite
+// losses ≥ 0, one per member.
+func (b *Blend) checkFitted(task Task) error {
+	f := b.Fitted
+	if f == nil {
+		return nil
+	}
+	want := FitMSE
+	if task == Classification {
+		want = FitLogLoss
+	}
+	if f.Metric != want {
+		return fmt.Errorf("blend fitted on %q, want %q for %s", f.Metric, want, task)
+	}
+	if f.Rows < 1 {
+		return fmt.Errorf("blend fitted on %d rows", f.Rows)
+	}
+	if len(f.MemberLoss) != len(b.Members) {
+		return fmt.Errorf("blend fit record with %d member losses for %d members", len(f.MemberLoss), len(b.Members))
+	}
+	for _, v := range append([]float64{f.Loss}, f.MemberLoss...) {
+		if !(v >= 0) || math.IsInf(v, 0) {
+			return fmt.Errorf("blend fit record with loss %v", v)
+		}
+	}
+	return nil
 }

@@ -232,3 +232,53 @@ func TestDecodeVersion5(t *testing.T) {
 	encSameFloats(t, "PredictRow", r5, r6)
 	encSameFloats(t, "Predict against PredictRow", b5, r5)
 }
+
+// A blend written in format version 6 (before learned weights) still decodes, with its
+// members (themselves version 6), scores as before, and re-encodes in today's version to
+// the same model with no fit record. testdata/models/mixed-blend.v6.cpsm is the
+// "mixed-blend" fuzz seed as the version-6 encoder wrote it (copied before the encoder
+// moved to version 7).
+func TestDecodeVersion6(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/mixed-blend.v6.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 6 {
+		t.Fatalf("fixture is format version %d, want 6", old[4])
+	}
+	m6, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 6: %v", err)
+	}
+	if m6.Blend == nil || m6.Blend.Fitted != nil || len(m6.Blend.Members) != 2 {
+		t.Fatalf("version 6 model: blend %+v", m6.Blend)
+	}
+	b, err := m6.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion {
+		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
+	}
+	// Today's encoding adds the fitted byte (0) to section 10, whose length uvarint may
+	// grow by a byte; the members' encodings keep their lengths.
+	if len(b) <= len(old) || len(b) > len(old)+2 {
+		t.Errorf("re-encoded to %d bytes from %d", len(b), len(old))
+	}
+	m7, err := Decode(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	encSameModel(t, m6, m7)
+	_, x := encMixedData(t, 60, true)
+	cols := make([][]float64, len(m6.Features))
+	at := map[string]int{"x": 0, "flag": 1, "color": 2, "city": 3}
+	for f, fi := range m6.Features {
+		cols[f] = x[at[fi.Name]]
+	}
+	b6, r6 := encPredictions(t, m6, cols)
+	b7, r7 := encPredictions(t, m7, cols)
+	encSameFloats(t, "Predict", b6, b7)
+	encSameFloats(t, "PredictRow", r6, r7)
+	encSameFloats(t, "Predict against PredictRow", b6, r6)
+}

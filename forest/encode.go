@@ -1,15 +1,15 @@
 package forest
 
-// The binary model encoding, format version 6. It holds everything scoring and explaining
+// The binary model encoding, format version 7. It holds everything scoring and explaining
 // need, so a model can be stored in a table cell and scored later without the data.
 // Decode also reads version 1 (before boosting: no section 7, no boosting controls) and
 // version 2 (no quantile control), version 3 (no section 8), version 4 (no section 9,
-// no ridge control) and version 5 (no section 10), so models stored by
-// earlier builds keep scoring.
+// no ridge control), version 5 (no section 10) and version 6 (no fit record in
+// section 10), so models stored by earlier builds keep scoring.
 //
 //	offset  field     type
 //	0       magic     4 bytes "CPSM"
-//	4       version   uint16, 6
+//	4       version   uint16, 7
 //	6       sections  the ten below, in tag order, each: tag byte, body length uvarint, body
 //	end-4   checksum  uint32, CRC-32 (Castagnoli) of every byte before it
 //
@@ -63,8 +63,10 @@ package forest
 //	                 (since 5)
 //	10   blend       empty when the model is not a blend; else rule string, member
 //	                 names list of string, weights list of float, member count uvarint,
-//	                 then per member its whole encoding (this version, never itself a
-//	                 blend) as a string (since 6)
+//	                 then per member its whole encoding (the blend's version, never
+//	                 itself a blend) as a string (since 6); then a fitted byte (0: weights
+//	                 given; 1: learned, and metric string, rows uvarint, loss float,
+//	                 member losses list of float follow) (since 7)
 //
 // A tree's width (the number of classes, or 1 for boosted and regression trees) and each
 // binning's kind are implied, not
@@ -82,7 +84,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 6
+	encodingVersion = 7
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -453,6 +455,15 @@ func (w *encWriter) blend(m *Model) {
 	w.uvarint(uint64(len(b.Members)))
 	for _, mem := range b.Members {
 		w.str(string(mem.encode()))
+	}
+	if f := b.Fitted; f == nil {
+		w.u8(0)
+	} else {
+		w.u8(1)
+		w.str(f.Metric)
+		w.uvarint(uint64(f.Rows))
+		w.float(f.Loss)
+		w.floats(f.MemberLoss)
 	}
 }
 
@@ -858,8 +869,8 @@ func (r *encReader) blend(m *Model) {
 		if r.err != nil {
 			break
 		}
-		if len(enc) >= encodingHead && binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])) != encodingVersion {
-			r.fail("member %d: format version %d inside a version %d blend", j, binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])), encodingVersion)
+		if len(enc) >= encodingHead && binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])) != r.version {
+			r.fail("member %d: format version %d inside a version %d blend", j, binary.LittleEndian.Uint16([]byte(enc[len(encodingMagic):])), r.version)
 			break
 		}
 		mem, err := decode([]byte(enc))
@@ -868,6 +879,16 @@ func (r *encReader) blend(m *Model) {
 			break
 		}
 		b.Members[j] = mem
+	}
+	if r.version >= 7 {
+		switch fitted := r.u8("fitted"); fitted {
+		case 0:
+		case 1:
+			b.Fitted = &FittedOn{Metric: r.str("fit metric"), Rows: int(r.bounded("fit rows", math.MaxInt)), Loss: r.float("fit loss"),
+				MemberLoss: r.floats("member losses")}
+		default:
+			r.fail("fitted byte %d, want 0 or 1", fitted)
+		}
 	}
 	m.Blend = b
 }

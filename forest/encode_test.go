@@ -360,7 +360,8 @@ func TestEncodeCoversEveryField(t *testing.T) {
 	want := map[reflect.Type][]string{
 		reflect.TypeFor[Model](): {"Method", "Task", "Target", "Classes", "Features", "Params", "Rows", "Trees", "OOB", "Importance", "Boost", "AdaBoost", "Linear", "Blend"},
 		// index and scratch are derived from the members when a blend is built or decoded.
-		reflect.TypeFor[Blend]():       {"Rule", "Members", "Names", "Weights", "index", "scratch"},
+		reflect.TypeFor[Blend]():       {"Rule", "Members", "Names", "Weights", "Fitted", "index", "scratch"},
+		reflect.TypeFor[FittedOn]():    {"Metric", "Rows", "Loss", "MemberLoss"},
 		reflect.TypeFor[Linear]():      {"Terms", "Iterations"},
 		reflect.TypeFor[Term]():        {"Name", "Kind", "Feature", "Level", "Fill", "Estimate", "StdError", "Z", "PValue"},
 		reflect.TypeFor[AdaBoost]():    {"Alpha", "Error"},

@@ -279,7 +279,10 @@ func (h *Host) hasRowKeys(ctx context.Context, e Entry) (bool, error) {
 // first trees; NULL while no row has a vote). For a boosted model, trees is the round
 // (1…every round trained, also those past the kept best round) with metric 'train_loss'
 // and, when it was trained with a holdout, 'holdout_loss' next: the loss after that
-// round, mean squared error (loss 'squared') or mean log loss (loss 'logistic').
+// round, mean squared error (loss 'squared') or mean log loss (loss 'logistic'). For an
+// AdaBoost model, trees is the round with metric 'weighted_error' (ε, the round's tree's
+// weighted training error under that round's row weights) and then 'alpha' (α, its vote
+// weight).
 func (h *Host) bindCurve(call duck.TableCall) (*duck.TableBinding, error) {
 	const fn = "copse_curve"
 	m, e, _, err := h.relationModel(fn, call)
@@ -288,6 +291,9 @@ func (h *Host) bindCurve(call duck.TableCall) (*duck.TableBinding, error) {
 	}
 	if b := m.Boost; b != nil {
 		return boostCurve(fn, b, e)
+	}
+	if a := m.AdaBoost; a != nil {
+		return adaBoostCurve(fn, a, e)
 	}
 	if m.OOB == nil {
 		return nil, noOOB(fn, m, e)
@@ -333,6 +339,36 @@ func boostCurve(fn string, b *forest.Boost, e Entry) (*duck.TableBinding, error)
 				} else {
 					out.SetString(1, j, curveHoldoutLoss)
 					setFloat(out, 2, j, b.HoldoutLoss[r])
+				}
+			}), nil
+		},
+	}, nil
+}
+
+// Metrics of an AdaBoost model's curve.
+const (
+	curveWeightedError = "weighted_error"
+	curveAlpha         = "alpha"
+)
+
+// adaBoostCurve is copse_curve's rows for an AdaBoost model: per round, its tree's
+// weighted training error and then its α.
+func adaBoostCurve(fn string, a *forest.AdaBoost, e Entry) (*duck.TableBinding, error) {
+	if len(a.Error) != len(a.Alpha) {
+		return nil, fmt.Errorf("%s: model %q (version %d): %d errors for %d rounds", fn, e.Name, e.Version, len(a.Error), len(a.Alpha))
+	}
+	return &duck.TableBinding{
+		Columns: []duck.Column{{Name: "trees", Type: duck.BigInt}, {Name: "metric", Type: duck.Varchar}, {Name: "value", Type: duck.Double}},
+		Init: func() (duck.FillFunc, error) {
+			return rowsFill(2*len(a.Alpha), func(out *duck.Chunk, j, i int) {
+				r := i / 2
+				out.SetInt64(0, j, int64(r+1))
+				if i%2 == 0 {
+					out.SetString(1, j, curveWeightedError)
+					setFloat(out, 2, j, a.Error[r])
+				} else {
+					out.SetString(1, j, curveAlpha)
+					setFloat(out, 2, j, a.Alpha[r])
 				}
 			}), nil
 		},

@@ -166,3 +166,41 @@ func TestRelationsOOB(t *testing.T) {
 		}
 	}
 }
+
+// copse_curve for AdaBoost: per round the tree's weighted error and its α, equal to the
+// stored record bit for bit, and α following SAMME's formula α = ν·(ln((1−ε)/ε) +
+// ln(K−1)) (Zhu, Zou, Rosset & Hastie 2009) from the returned ε.
+func TestRelationsCurveAdaBoost(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	mustExec(t, db, "CREATE TABLE iris AS SELECT * FROM read_csv('../testdata/iris.csv')")
+	bsTrain(t, db, "ada", "iris", "target := 'species', method := 'adaboost', trees := 12, max_depth := 1, learning_rate := 0.5")
+	m, _ := trModel(t, h, "ada")
+	a := m.AdaBoost
+	if a == nil || len(a.Alpha) < 2 {
+		t.Fatalf("adaboost record %+v", a)
+	}
+	errs := queryFloats(t, db, "SELECT value FROM copse_curve('ada') WHERE metric = 'weighted_error' ORDER BY trees")
+	alphas := queryFloats(t, db, "SELECT value FROM copse_curve('ada') WHERE metric = 'alpha' ORDER BY trees")
+	sameBits(t, "weighted_error", errs, a.Error)
+	sameBits(t, "alpha", alphas, a.Alpha)
+	rounds := queryFloats(t, db, "SELECT DISTINCT trees FROM copse_curve('ada') ORDER BY trees")
+	for r, v := range rounds {
+		if v != float64(r+1) {
+			t.Fatalf("rounds %v", rounds)
+		}
+	}
+	if len(rounds) != len(m.Trees) {
+		t.Errorf("%d rounds for %d trees", len(rounds), len(m.Trees))
+	}
+	K := float64(len(m.Classes))
+	for r, e := range errs {
+		want := 0.5 * (math.Log((1-e)/e) + math.Log(K-1))
+		if math.Abs(alphas[r]-want) > 1e-12*math.Max(1, want) {
+			t.Errorf("round %d: α %v, SAMME's formula gives %v for ε %v", r+1, alphas[r], want, e)
+		}
+	}
+	if got := queryStrings(t, db, "SELECT metric FROM copse_curve('ada') WHERE trees = 1"); !slices.Equal(got, []string{curveWeightedError, curveAlpha}) {
+		t.Errorf("round 1 metrics %v", got)
+	}
+}

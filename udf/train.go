@@ -170,6 +170,9 @@ func summaryMetric(m *forest.Model) (name string, value float64, ok bool) {
 	if b := m.Boost; b != nil && b.BestRound >= 1 && len(b.HoldoutLoss) >= b.BestRound {
 		return holdoutMetric[b.Loss], b.HoldoutLoss[b.BestRound-1], true
 	}
+	if b := m.Blend; b != nil && b.Fitted != nil {
+		return "holdout_" + b.Fitted.Metric, b.Fitted.Loss, true // learned weights: the loss they were fitted to
+	}
 	return "", 0, false
 }
 
