@@ -97,15 +97,20 @@ func numericEdges(sample []float64, maxBins int) []float64 {
 		return []float64{math.Inf(1)}
 	}
 	slices.Sort(vals)
-	distinct := vals[:0:0]
-	var counts []int
+	total := len(vals)
+	// The distinct values overwrite vals from the front (never past the value being
+	// read), so the sample is copied once.
+	counts := make([]int32, 0, min(total, 1024))
+	nd := 0
 	for i, v := range vals {
-		if i == 0 || v != vals[i-1] {
-			distinct = append(distinct, v)
+		if i == 0 || v != vals[nd-1] {
+			vals[nd] = v
+			nd++
 			counts = append(counts, 0)
 		}
-		counts[len(counts)-1]++
+		counts[nd-1]++
 	}
+	distinct := vals[:nd]
 	var upper []float64
 	if len(distinct) <= maxBins {
 		upper = make([]float64, 0, len(distinct))
@@ -114,9 +119,9 @@ func numericEdges(sample []float64, maxBins int) []float64 {
 		}
 		return append(upper, math.Inf(1))
 	}
-	rest, binsLeft, cum := len(vals), maxBins, 0
+	rest, binsLeft, cum := total, maxBins, 0
 	for i := 0; i+1 < len(distinct) && binsLeft > 1; i++ {
-		cum += counts[i]
+		cum += int(counts[i])
 		target := float64(rest) / float64(binsLeft)
 		if float64(cum) >= target || float64(counts[i+1]) >= target {
 			upper = append(upper, midpoint(distinct[i], distinct[i+1]))

@@ -56,9 +56,10 @@ type boostRun struct {
 	train   []int32   // training rows (positive weight, not held out), increasing
 	holdout []int32   // held-out rows (positive weight), increasing
 	threads int
-	alpha   float64 // quantile level: Params.Quantile (quantile), huberAlpha (huber)
-	delta   float64 // Huber δ of the current round
-	delta0  float64 // Huber δ of the first round: the loss curve's, so rounds compare
+	alpha   float64   // quantile level: Params.Quantile (quantile), huberAlpha (huber)
+	delta   float64   // Huber δ of the current round
+	delta0  float64   // Huber δ of the first round: the loss curve's, so rounds compare
+	sums    []float64 // per-block (weight, loss) sums of the gradient pass
 }
 
 // boost trains the rounds and returns the kept trees and the boosting record.
@@ -147,7 +148,10 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 		if fr.stop.Load() {
 			return nil, nil, errStopped
 		}
-		br.gradients()
+		trainLoss := br.gradients() // at the scores after round r−1
+		if r > 0 {
+			b.TrainLoss = append(b.TrainLoss, trainLoss)
+		}
 		rng := rand.New(rand.NewPCG(treeSeed(p.Seed, r, streamRows), uint64(r)))
 		if p.RowFraction < 1 {
 			pick = br.subsample(p.RowFraction, rng, pick)
@@ -180,7 +184,6 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 			trees = append(trees, t)
 		}
 		b.Rounds++
-		b.TrainLoss = append(b.TrainLoss, br.meanLoss(br.train))
 		if br.holdout != nil {
 			hl := br.meanLoss(br.holdout)
 			b.HoldoutLoss = append(b.HoldoutLoss, hl)
@@ -197,6 +200,7 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 			break
 		}
 	}
+	b.TrainLoss = append(b.TrainLoss, br.meanLoss(br.train)) // the last round's
 	b.BestRound = best + 1
 	kept := b.BestRound * K
 	clear(trees[kept:]) // let the rounds past the best go
@@ -396,21 +400,36 @@ func (br *boostRun) refit(t *Tree, g *grower) {
 }
 
 // gradients writes each training row's Newton target −g/h into the grower's target and
-// its weight w·h into hw.
-func (br *boostRun) gradients() {
+// its weight w·h into hw, and returns the training rows' weighted mean loss at the
+// current scores (the previous round's training loss), from the same exponentials.
+// Blocks of rows are summed apart and added in block order, as in meanLoss, so the
+// result does not depend on the number of threads.
+func (br *boostRun) gradients() float64 {
 	d, yreg := br.fr.d, br.fr.set.yreg
 	n := len(br.train)
 	if br.loss == LossHuber {
 		br.delta = br.huberDelta()
 	}
+	blocks := (n + boostBlock - 1) / boostBlock
+	sums := slices.Grow(br.sums[:0], 2*blocks)[:2*blocks]
+	br.sums = sums
 	if K := br.K; K > 1 {
-		parallelFor((n+boostBlock-1)/boostBlock, br.threads, func(k int) {
+		parallelFor(blocks, br.threads, func(k int) {
 			pr := make([]float64, K)
+			sw, sl := 0.0, 0.0
 			for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
-				copy(pr, br.score[int(i)*K:int(i+1)*K])
-				softmax(pr)
+				f := br.score[int(i)*K : int(i+1)*K]
+				top := slices.Max(f)
+				sum := 0.0
+				for c, x := range f {
+					pr[c] = math.Exp(x - top)
+					sum += pr[c]
+				}
 				w, yc := d.weight(int(i)), int(br.y[i])
-				for c, pc := range pr {
+				sw += w
+				sl += w * (top + math.Log(sum) - f[yc]) // log Σ e^F − F_y
+				for c := range pr {
+					pc := pr[c] / sum
 					h := max(pc*(1-pc), hessianFloor)
 					t := -pc
 					if c == yc {
@@ -419,27 +438,38 @@ func (br *boostRun) gradients() {
 					br.mg[int(i)*K+c], br.mh[int(i)*K+c] = t/h, w*h
 				}
 			}
+			sums[2*k], sums[2*k+1] = sw, sl
 		})
-		return
+		return sumBlocks(sums)
 	}
-	parallelFor((n+boostBlock-1)/boostBlock, br.threads, func(k int) {
+	parallelFor(blocks, br.threads, func(k int) {
+		sw, sl := 0.0, 0.0
 		for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
 			f, y := br.score[i], br.y[i]
 			w := d.weight(int(i))
+			sw += w
 			switch br.loss {
 			case LossLogistic:
-				pr := logisticLink(f)
+				l, pr := logisticLoss(f, y)
+				sl += w * l
 				h := max(pr*(1-pr), hessianFloor)
 				yreg[i] = (y - pr) / h
 				br.hw[i] = w * h
 				continue
 			case LossPoisson:
-				mu := math.Exp(min(f, poissonMaxScore))
+				fc := min(f, poissonMaxScore)
+				mu := math.Exp(fc)
+				l := mu - y
+				if y > 0 {
+					l += y * (math.Log(y) - fc)
+				}
+				sl += w * 2 * l
 				h := max(mu, hessianFloor)
 				yreg[i] = (y - mu) / h
 				br.hw[i] = w * h
 				continue
 			}
+			sl += w * br.rowLoss(y, f)
 			r := y - f
 			switch br.loss {
 			case LossAbsolute:
@@ -458,7 +488,19 @@ func (br *boostRun) gradients() {
 			yreg[i] = r
 			br.hw[i] = w
 		}
+		sums[2*k], sums[2*k+1] = sw, sl
 	})
+	return sumBlocks(sums)
+}
+
+// sumBlocks adds per-block (weight, loss) sums in block order and returns the mean loss.
+func sumBlocks(sums []float64) float64 {
+	sw, sl := 0.0, 0.0
+	for k := 0; k < len(sums); k += 2 {
+		sw += sums[k]
+		sl += sums[k+1]
+	}
+	return sl / sw
 }
 
 // subsample marks round's share of the training rows, drawn without replacement
@@ -546,12 +588,7 @@ func (br *boostRun) meanLoss(rows []int32) float64 {
 		}
 		sums[2*k], sums[2*k+1] = sw, sl
 	})
-	sw, sl := 0.0, 0.0
-	for k := range blocks {
-		sw += sums[2*k]
-		sl += sums[2*k+1]
-	}
-	return sl / sw
+	return sumBlocks(sums)
 }
 
 // rowLoss is one row's loss at raw score f: squared error, log loss, absolute error,
@@ -560,8 +597,8 @@ func (br *boostRun) rowLoss(y, f float64) float64 {
 	r := y - f
 	switch br.loss {
 	case LossLogistic:
-		// log(1 + e^F) − yF, written to stay finite for large |F|.
-		return max(f, 0) + math.Log1p(math.Exp(-math.Abs(f))) - y*f
+		l, _ := logisticLoss(f, y)
+		return l
 	case LossAbsolute:
 		return math.Abs(r)
 	case LossHuber:
@@ -584,6 +621,19 @@ func (br *boostRun) rowLoss(y, f float64) float64 {
 		return 2 * l
 	}
 	return r * r
+}
+
+// logisticLoss is the log loss log(1 + e^F) − yF at raw score F and the probability
+// p = 1/(1 + e^−F), both from one exponential e^−|F| so that neither overflows. The
+// logarithm is of 1 + e^−|F| (math.Log, not Log1p, which costs twice as much): for
+// e^−|F| below 1e-16 it returns 0 where the loss is below 1e-16.
+func logisticLoss(f, y float64) (loss, p float64) {
+	e := math.Exp(-math.Abs(f))
+	p = 1 / (1 + e)
+	if f < 0 {
+		p = e / (1 + e)
+	}
+	return max(f, 0) + math.Log(1+e) - y*f, p
 }
 
 // sign is −1, 0 or 1.

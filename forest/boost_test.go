@@ -301,12 +301,15 @@ func TestBoostingValidate(t *testing.T) {
 	}
 }
 
-// Large nodes split their histogram work between threads; the model must not change.
+// Large nodes split their histogram and partition work between threads (by features,
+// and in row blocks past 2·histBlockRows and partitionBlock rows); on amd64 the
+// histograms come from an assembly loop. The model must not change with either.
 func TestBoostingDeterministicAcrossThreads(t *testing.T) {
-	n := 3 * parallelRows
+	n := partitionBlock + 2*histBlockRows + 123
 	rng := rand.New(rand.NewPCG(5, 6))
 	d := NewDataset(n)
 	y := make([]int32, n)
+	w := make([]float64, n)
 	var cols [4][]float64
 	for f := range cols {
 		cols[f] = make([]float64, n)
@@ -318,6 +321,10 @@ func TestBoostingDeterministicAcrossThreads(t *testing.T) {
 		if cols[0][i]+cols[1][i]*cols[2][i]+rng.NormFloat64() > 0 {
 			y[i] = 1
 		}
+		if i%17 == 0 {
+			cols[3][i] = math.NaN()
+		}
+		w[i] = float64(1 + i%3)
 	}
 	for f, c := range cols {
 		if err := d.AddNumeric(string(rune('a'+f)), c); err != nil {
@@ -329,19 +336,38 @@ func TestBoostingDeterministicAcrossThreads(t *testing.T) {
 	}
 	p := DefaultParams(MethodBoosting)
 	p.Trees, p.MaxDepth, p.RowFraction, p.HoldoutFraction = 5, 3, 0.9, 0.1
-	var enc [2][]byte
-	for k, threads := range []int{1, 2} {
-		p.Threads = threads
-		m, err := Train(context.Background(), d, p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if enc[k], err = m.MarshalBinary(); err != nil {
-			t.Fatal(err)
-		}
+	p.MinLeaf = 12000 // binding, so that every histogram sum matters
+	loops := []bool{false}
+	if useAVX2 {
+		loops = append(loops, true)
 	}
-	if !bytes.Equal(enc[0], enc[1]) {
-		t.Error("models differ between 1 and 2 threads")
+	defer func(v bool) { useAVX2 = v }(useAVX2)
+	for _, weighted := range []bool{false, true} {
+		if weighted {
+			if err := d.SetWeights(w); err != nil {
+				t.Fatal(err)
+			}
+		}
+		var first []byte
+		for _, avx := range loops {
+			useAVX2 = avx
+			for _, threads := range []int{1, 2, 3} {
+				p.Threads = threads
+				m, err := Train(context.Background(), d, p)
+				if err != nil {
+					t.Fatal(err)
+				}
+				enc, err := m.MarshalBinary()
+				if err != nil {
+					t.Fatal(err)
+				}
+				if first == nil {
+					first = enc
+				} else if !bytes.Equal(first, enc) {
+					t.Errorf("weighted %v, assembly loop %v, %d threads: model differs from the first", weighted, avx, threads)
+				}
+			}
+		}
 	}
 }
 

@@ -19,8 +19,11 @@ type trainSet struct {
 	// The bins of every cell, row-major (a row's bins share a cache line, so one node
 	// pass reads each row once for all drawn features); one byte per cell when every
 	// feature has at most 256 bins, else two (mat16).
-	mat8     []uint8
-	mat16    []uint16
+	mat8  []uint8
+	mat16 []uint16
+	// The same bins column by column (col8 or col16, by feature), for the partition.
+	col8     [][]uint8
+	col16    [][]uint16
 	features int
 	bins     []Binning
 	task     Task
@@ -109,7 +112,11 @@ type grower struct {
 	cur          []float64 // totals of the node being split
 	order        []int     // feature draw order
 	cat          []catEntry
-	inLeft, here []bool // per-bin scratch for categorical splits
+	inLeft, here []bool  // per-bin scratch for categorical splits
+	dir          []uint8 // per-bin side of the split being applied (1: left)
+	blockTot     []float64
+	blockHist    []float64 // row blocks' histograms past the first (boosting)
+	blockLeft    []int
 	best         splitInfo
 	parentScore  float64 // score of the node being split
 	stack        []pending
@@ -153,6 +160,7 @@ func newGrower(set *trainSet, cfg growConfig, cancel *atomic.Bool) *grower {
 		cur:     make([]float64, T),
 		order:   make([]int, set.features),
 		inLeft:  make([]bool, maxBins),
+		dir:     make([]uint8, maxBins),
 		here:    make([]bool, maxBins),
 	}
 	g.subtract = set.newton && cfg.drawn == set.features
@@ -228,8 +236,6 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 		}
 		nl := g.partition(e, &g.best)
 		mid := e.start + int32(nl)
-		g.nodeTotals(int(e.start), int(mid), g.l)
-		g.nodeTotals(int(mid), int(e.end), g.r)
 		if !g.best.hasMissing {
 			// No missing values here: send future ones to the heavier side.
 			g.best.missingLeft = g.weight(g.l) >= g.weight(g.r)
@@ -421,21 +427,61 @@ func (g *grower) evaluate(feats []int, e pending) {
 // starting others would cost more than it saves.
 const parallelRows = 8192
 
-// newtonHistograms builds boosting's histograms, splitting the features of a large node
-// between up to cfg.threads goroutines.
+// Large nodes build boosting's histograms in row blocks: at most histBlocks of them, of
+// at least histBlockRows rows each. The blocks depend on the node's row count only, and
+// their histograms are added in block order, so the sums are the same on any number of
+// threads; each thread reads only its blocks' rows, once for every feature.
+const (
+	histBlocks    = 8
+	histBlockRows = 16384
+)
+
+// newtonHistograms builds boosting's histograms into hist (zero on entry). Large nodes
+// are cut into row blocks built on up to cfg.threads goroutines; nodes with one block
+// split their features between goroutines instead.
 func (g *grower) newtonHistograms(hist []float64, feats []int, rows []int32, wts, y []float64, lo, hi []int, track bool) {
 	set := g.set
-	build := func(j0, j1 int) {
-		h := hist[j0*g.stride:]
+	build := func(h []float64, j0, j1 int, rows []int32, wts, y []float64) {
 		if set.mat8 != nil {
-			histNewton(h, g.stride, set.mat8, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
+			histNewton(h, g.stride, set.mat8, set.col8, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
 		} else {
-			histNewton(h, g.stride, set.mat16, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
+			histNewton(h, g.stride, set.mat16, set.col16, set.features, feats[j0:j1], rows, wts, y, set.rowWeight, lo[j0:j1], hi[j0:j1], track)
 		}
 	}
+	n := len(rows)
+	if blocks := min(histBlocks, n/histBlockRows); blocks > 1 {
+		size := len(feats) * g.stride
+		if len(g.blockHist) < (blocks-1)*size {
+			g.blockHist = make([]float64, (blocks-1)*size)
+		}
+		bufs := g.blockHist[:(blocks-1)*size]
+		clear(bufs)
+		work := func(k int) {
+			h := hist[:size]
+			if k > 0 {
+				h = bufs[(k-1)*size : k*size]
+			}
+			r0, r1 := k*n/blocks, (k+1)*n/blocks
+			build(h, 0, len(feats), rows[r0:r1], wts[r0:r1], y[r0:r1])
+		}
+		if g.cfg.threads <= 1 {
+			for k := range blocks {
+				work(k)
+			}
+		} else {
+			parallelFor(blocks, g.cfg.threads, work)
+		}
+		dst := hist[:size]
+		for k := range blocks - 1 {
+			for i, v := range bufs[k*size : (k+1)*size] {
+				dst[i] += v
+			}
+		}
+		return
+	}
 	parts := min(g.cfg.threads, len(feats))
-	if parts <= 1 || len(rows) < parallelRows {
-		build(0, len(feats))
+	if parts <= 1 || n < parallelRows {
+		build(hist, 0, len(feats), rows, wts, y)
 		return
 	}
 	var wg sync.WaitGroup
@@ -444,7 +490,7 @@ func (g *grower) newtonHistograms(hist []float64, feats []int, rows []int32, wts
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			build(j0, j1)
+			build(hist[j0*g.stride:], j0, j1, rows, wts, y)
 		}()
 	}
 	wg.Wait()
@@ -493,7 +539,7 @@ func (g *grower) childHistograms(ph int32, start, mid, end int) (int32, int32) {
 	} else {
 		g.buildAll(small, mid, end)
 	}
-	for k := 0; k < len(large); k += 3 {
+	for k := 0; k < len(large); k += newtonStat {
 		n := large[k+2] - small[k+2]
 		if n <= 1e-12*large[k+2] {
 			// The larger child has no rows here; drop the rounding residue of H and S
@@ -666,12 +712,13 @@ func (g *grower) scanNewton(f int, h []float64, lo, hi int, miss []float64) {
 	minLeaf, parent, lam := g.cfg.minLeaf, g.parentScore, g.set.penalty
 	var ah, as, an float64
 	for b := lo; b <= hi; b++ {
-		hn := h[3*b+2]
+		hb := h[newtonStat*b : newtonStat*b+3]
+		hn := hb[2]
 		if hn == 0 {
 			continue
 		}
-		ah += h[3*b]
-		as += h[3*b+1]
+		ah += hb[0]
+		as += hb[1]
 		an += hn
 		rh, rs, rn := th-ah, ts-as, tn-an
 		if an >= minLeaf && rn+mn >= minLeaf {
@@ -762,21 +809,27 @@ func (g *grower) scanCategorical(f int, h []float64, lo, hi int) {
 
 // partition moves the rows of node e that go left to the front of its range, keeping
 // row order on each side (so later passes read the matrix in increasing address order),
-// and returns how many went left.
+// sums the children's totals into g.l and g.r, and returns how many went left.
 func (g *grower) partition(e pending, s *splitInfo) int {
-	sp := splitRule{feature: s.feature, bin: s.bin, missingLeft: s.missingLeft}
+	nb := g.set.bins[s.feature].NumBins()
+	dir := g.dir[:nb]
+	clear(dir)
+	if s.missingLeft {
+		dir[0] = 1
+	}
 	if s.categorical {
-		sp.left = g.inLeft[:g.set.bins[s.feature].NumBins()]
-		sp.left[0] = s.missingLeft
 		for _, b := range s.leftBins {
-			sp.left[b] = true
+			dir[b] = 1
 		}
-		defer clear(sp.left)
+	} else {
+		for b := 1; b <= s.bin; b++ {
+			dir[b] = 1
+		}
 	}
-	if g.set.mat8 != nil {
-		return partitionRows(g, g.set.mat8, e, sp)
+	if g.set.col8 != nil {
+		return partitionRows(g, g.set.col8[s.feature], e, dir, g.l, g.r)
 	}
-	return partitionRows(g, g.set.mat16, e, sp)
+	return partitionRows(g, g.set.col16[s.feature], e, dir, g.l, g.r)
 }
 
 // levelSet turns a categorical split over bins into a bit set over level codes: levels in

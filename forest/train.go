@@ -175,12 +175,34 @@ func binData(d *Dataset, task Task, p Params, threads int) *trainSet {
 			}
 		}
 	})
+	// Column copies for the partition, which reads one feature of each row: a column
+	// keeps those bytes together, where the row-major matrix spreads them a cache line
+	// apart. Narrow columns are the binning's own.
+	if wide {
+		set.col16 = make([][]uint16, F)
+		for f := range cols {
+			if cols[f].u16 != nil {
+				set.col16[f] = cols[f].u16
+				continue
+			}
+			c := make([]uint16, d.rows)
+			for i, b := range cols[f].u8 {
+				c[i] = uint16(b)
+			}
+			set.col16[f] = c
+		}
+	} else {
+		set.col8 = make([][]uint8, F)
+		for f := range cols {
+			set.col8[f] = cols[f].u8
+		}
+	}
 	if p.Method == MethodBoosting {
 		// Boosted trees are regression trees on Newton targets whatever the task; the
 		// boosting loop writes the targets into yreg before each round.
 		set.task, set.newton, set.rowWeight = Regression, true, d.weights
 		set.yreg = make([]float64, d.rows)
-		set.stat, set.totalWidth = 3, 4
+		set.stat, set.totalWidth = newtonStat, 4
 		set.penalty = p.LeafPenalty
 		set.score = penalizedScore(p.LeafPenalty)
 	} else if task == Classification {
