@@ -60,6 +60,7 @@ type boostRun struct {
 	delta   float64   // Huber δ of the current round
 	delta0  float64   // Huber δ of the first round: the loss curve's, so rounds compare
 	sums    []float64 // per-block (weight, loss) sums of the gradient pass
+	ylogy   []float64 // Poisson: y·log y of every row (0 at y = 0), for the deviance
 }
 
 // boost trains the rounds and returns the kept trees and the boosting record.
@@ -94,6 +95,12 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 		}
 		if !pos {
 			return nil, nil, fmt.Errorf("forest: loss %q: target %q has no value above 0", loss, d.target.name)
+		}
+		br.ylogy = make([]float64, n)
+		for i, y := range br.y {
+			if y > 0 {
+				br.ylogy[i] = y * math.Log(y)
+			}
 		}
 	}
 	br.split(p)
@@ -413,10 +420,12 @@ func (br *boostRun) gradients() float64 {
 	blocks := (n + boostBlock - 1) / boostBlock
 	sums := slices.Grow(br.sums[:0], 2*blocks)[:2*blocks]
 	br.sums = sums
+	unweighted := d.weights == nil
 	if K := br.K; K > 1 {
 		parallelFor(blocks, br.threads, func(k int) {
 			pr := make([]float64, K)
 			sw, sl := 0.0, 0.0
+			var logs logProduct
 			for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
 				f := br.score[int(i)*K : int(i+1)*K]
 				top := slices.Max(f)
@@ -427,7 +436,13 @@ func (br *boostRun) gradients() float64 {
 				}
 				w, yc := d.weight(int(i)), int(br.y[i])
 				sw += w
-				sl += w * (top + math.Log(sum) - f[yc]) // log Σ e^F − F_y
+				// log Σ e^F − F_y; sum lies in [1, K].
+				if unweighted {
+					sl += top - f[yc]
+					logs.mul(sum, &sl)
+				} else {
+					sl += w * (top + math.Log(sum) - f[yc])
+				}
 				for c := range pr {
 					pc := pr[c] / sum
 					h := max(pc*(1-pc), hessianFloor)
@@ -438,20 +453,32 @@ func (br *boostRun) gradients() float64 {
 					br.mg[int(i)*K+c], br.mh[int(i)*K+c] = t/h, w*h
 				}
 			}
+			logs.flush(&sl)
 			sums[2*k], sums[2*k+1] = sw, sl
 		})
 		return sumBlocks(sums)
 	}
 	parallelFor(blocks, br.threads, func(k int) {
 		sw, sl := 0.0, 0.0
+		var logs logProduct
 		for _, i := range br.train[k*boostBlock : min(n, (k+1)*boostBlock)] {
 			f, y := br.score[i], br.y[i]
 			w := d.weight(int(i))
 			sw += w
 			switch br.loss {
 			case LossLogistic:
-				l, pr := logisticLoss(f, y)
-				sl += w * l
+				// The log loss is max(F, 0) − yF + log(1 + e^−|F|).
+				e := math.Exp(-math.Abs(f))
+				pr := 1 / (1 + e)
+				if f < 0 {
+					pr = e / (1 + e)
+				}
+				if unweighted {
+					sl += max(f, 0) - y*f
+					logs.mul(1+e, &sl)
+				} else {
+					sl += w * (max(f, 0) - y*f + math.Log(1+e))
+				}
 				h := max(pr*(1-pr), hessianFloor)
 				yreg[i] = (y - pr) / h
 				br.hw[i] = w * h
@@ -459,11 +486,7 @@ func (br *boostRun) gradients() float64 {
 			case LossPoisson:
 				fc := min(f, poissonMaxScore)
 				mu := math.Exp(fc)
-				l := mu - y
-				if y > 0 {
-					l += y * (math.Log(y) - fc)
-				}
-				sl += w * 2 * l
+				sl += w * 2 * (mu - y + br.ylogy[i] - y*fc)
 				h := max(mu, hessianFloor)
 				yreg[i] = (y - mu) / h
 				br.hw[i] = w * h
@@ -488,9 +511,39 @@ func (br *boostRun) gradients() float64 {
 			yreg[i] = r
 			br.hw[i] = w
 		}
+		logs.flush(&sl)
 		sums[2*k], sums[2*k+1] = sw, sl
 	})
 	return sumBlocks(sums)
+}
+
+// logProduct sums logarithms of factors ≥ 1 with one logarithm per logChunk factors (or
+// sooner, should the product pass 1e280): the log of their product, which differs from
+// the sum of their logs by rounding only. The gradient pass takes the
+// training log loss of unweighted rows this way, where one log per row cost as much as
+// the rest of the pass.
+type logProduct struct {
+	prod float64
+	n    int
+}
+
+const logChunk = 32
+
+func (lp *logProduct) mul(x float64, sum *float64) {
+	if lp.n == 0 {
+		lp.prod = 1
+	}
+	lp.prod *= x
+	if lp.n++; lp.n == logChunk || lp.prod > 1e280 {
+		lp.flush(sum)
+	}
+}
+
+func (lp *logProduct) flush(sum *float64) {
+	if lp.n > 0 {
+		*sum += math.Log(lp.prod)
+		lp.n = 0
+	}
 }
 
 // sumBlocks adds per-block (weight, loss) sums in block order and returns the mean loss.
