@@ -103,6 +103,9 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 			}
 		}
 	}
+	if loss == LossLogistic || loss == LossMultinomial || loss == LossPoisson {
+		fr.set.minHessian = minHessian
+	}
 	br.split(p)
 	if len(br.train) == 0 {
 		return nil, nil, errors.New("forest: boosting: no training rows with positive weight are left beside the holdout")

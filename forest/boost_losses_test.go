@@ -375,7 +375,7 @@ func TestBoostingPoissonExposure(t *testing.T) {
 // Iris (Fisher 1936, via Debian's python3-sklearn), a fixed 30 % test split:
 // multinomial boosting against scikit-learn 1.2.1's HistGradientBoostingClassifier with
 // the same settings (reference.json iris_boosting, from make_reference.py): test log
-// loss within 5 % of the reference's, or the same accuracy.
+// loss within 2 % of the reference's and the same accuracy.
 func TestBoostingIrisMultinomialReference(t *testing.T) {
 	var ref struct {
 		TestRows     []int   `json:"test_rows"`
@@ -415,9 +415,11 @@ func TestBoostingIrisMultinomialReference(t *testing.T) {
 	acc := float64(right) / float64(test.rows)
 	t.Logf("test log loss %.4f, reference %.4f (ratio %.4f); accuracy %.4f, reference %.4f",
 		ll, ref.TestLogLoss, ll/ref.TestLogLoss, acc, ref.TestAccuracy)
-	if ll > 1.05*ref.TestLogLoss && acc != ref.TestAccuracy {
-		t.Errorf("test log loss %.4f more than 5 %% above the reference's %.4f, and accuracy %.4f differs from %.4f",
-			ll, ref.TestLogLoss, acc, ref.TestAccuracy)
+	if ll > 1.02*ref.TestLogLoss {
+		t.Errorf("test log loss %.4f more than 2 %% above the reference's %.4f", ll, ref.TestLogLoss)
+	}
+	if acc != ref.TestAccuracy {
+		t.Errorf("test accuracy %.4f, reference %.4f", acc, ref.TestAccuracy)
 	}
 }
 

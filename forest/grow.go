@@ -41,6 +41,8 @@ type trainSet struct {
 	// gains and values use the hessian H. rowWeight holds w per row (nil: all ones).
 	newton    bool
 	rowWeight []float64
+	// minHessian is the least H of a boosted leaf (0: none); see the constant.
+	minHessian float64
 	// penalty is the L2 penalty λ on leaf values (boosting): a node scores S²/(H+λ)
 	// (score and scanNewton) and its value is S/(H+λ) (setValue). Zero elsewhere, which
 	// leaves the plain squared-error mean unchanged.
@@ -589,6 +591,9 @@ func (g *grower) consider(f int, miss []float64, missingLeft bool) (float64, boo
 	if wl < g.cfg.minLeaf || wr < g.cfg.minLeaf {
 		return 0, false
 	}
+	if set.newton && (l[0] < set.minHessian || r[0] < set.minHessian) {
+		return 0, false
+	}
 	gain := set.score(l) + set.score(r) - g.parentScore
 	return gain, g.best.better(gain, f)
 }
@@ -703,13 +708,21 @@ func (g *grower) scanRegression(f int, h []float64, lo, hi int, miss []float64) 
 	}
 }
 
+// minHessian is the least hessian weight H a boosted leaf may hold under the losses
+// whose hessian varies (logistic, multinomial, Poisson). Where the model already fits a
+// node's rows with near certainty (p(1−p) → 0), splitting it further would set leaf
+// values S/H on almost no curvature: large, confident steps fitted to noise. A floor
+// of 1e-3 on the leaf's hessian sum is common practice. Under the other losses H is the
+// row weight, which MinLeaf bounds.
+const minHessian = 1e-3
+
 // scanNewton is scanNumeric for boosting's statistics (H, S, N): leaves must hold row
-// weight N ≥ MinLeaf, and the score is S²/(H+λ).
+// weight N ≥ MinLeaf and hessian weight H ≥ set.minHessian, and the score is S²/(H+λ).
 func (g *grower) scanNewton(f int, h []float64, lo, hi int, miss []float64) {
 	mh, ms, mn := miss[0], miss[1], miss[2]
 	th, ts, tn := g.cur[0]-mh, g.cur[1]-ms, g.cur[2]-mn
 	hasMissing := mn > 0
-	minLeaf, parent, lam := g.cfg.minLeaf, g.parentScore, g.set.penalty
+	minLeaf, parent, lam, minH := g.cfg.minLeaf, g.parentScore, g.set.penalty, g.set.minHessian
 	var ah, as, an float64
 	for b := lo; b <= hi; b++ {
 		hb := h[newtonStat*b : newtonStat*b+3]
@@ -721,13 +734,13 @@ func (g *grower) scanNewton(f int, h []float64, lo, hi int, miss []float64) {
 		as += hb[1]
 		an += hn
 		rh, rs, rn := th-ah, ts-as, tn-an
-		if an >= minLeaf && rn+mn >= minLeaf {
+		if an >= minLeaf && rn+mn >= minLeaf && ah >= minH && rh+mh >= minH {
 			gain := as*as/(ah+lam) + (rs+ms)*(rs+ms)/(rh+mh+lam) - parent
 			if g.best.better(gain, f) {
 				g.setNumeric(f, gain, b, false, hasMissing)
 			}
 		}
-		if hasMissing && an+mn >= minLeaf && rn >= minLeaf {
+		if hasMissing && an+mn >= minLeaf && rn >= minLeaf && ah+mh >= minH && rh >= minH {
 			gain := (as+ms)*(as+ms)/(ah+mh+lam) + rs*rs/(rh+lam) - parent
 			if g.best.better(gain, f) {
 				g.setNumeric(f, gain, b, true, hasMissing)
