@@ -586,12 +586,14 @@ func (br *boostRun) subsample(frac float64, rng *rand.Rand, pick []bool) []bool 
 // their values as prediction does.
 func (br *boostRun) update(t *Tree, g *grower, pick []bool, c int) {
 	K := br.K
-	for _, lr := range g.leafRows {
+	// Each row is in one leaf, so leaves can be taken by several threads.
+	parallelFor(len(g.leafRows), br.threads, func(k int) {
+		lr := g.leafRows[k]
 		v := t.Value[lr.node]
 		for _, r := range g.rows[lr.start:lr.end] {
 			br.score[int(r)*K+c] += v
 		}
-	}
+	})
 	var rest []int32
 	if pick != nil {
 		for k, i := range br.train {

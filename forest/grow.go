@@ -203,7 +203,7 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 	g.stack = append(g.stack[:0], pending{node: t.addNode(width), start: 0, end: int32(len(rows)), hist: -1})
 	g.leafRows = g.leafRows[:0]
 	g.totals = slices.Grow(g.totals[:0], T)[:T]
-	g.nodeTotals(0, len(rows), g.totals[:T])
+	g.rootTotals(g.totals[:T])
 	rootW := g.weight(g.totals[:T])
 	minGain := g.cfg.minGain * rootW
 	// Gains are differences of sums over the node; allow for their rounding.
@@ -309,6 +309,29 @@ func (g *grower) splittable(e pending, w float64) bool {
 		}
 	}
 	return classes > 1
+}
+
+// rootTotals sums the statistics of all the tree's rows into dst. Boosting's large
+// roots are summed in fixed blocks (on cfg.threads goroutines) added in block order,
+// so the sums do not depend on the thread count.
+func (g *grower) rootTotals(dst []float64) {
+	n := len(g.rows)
+	blocks := (n + partitionBlock - 1) / partitionBlock
+	if !g.set.newton || blocks <= 1 {
+		g.nodeTotals(0, n, dst)
+		return
+	}
+	T := g.set.totalWidth
+	g.blockTot = slices.Grow(g.blockTot[:0], T*blocks)[:T*blocks]
+	parallelFor(blocks, g.cfg.threads, func(k int) {
+		g.nodeTotals(k*partitionBlock, min(n, (k+1)*partitionBlock), g.blockTot[k*T:(k+1)*T])
+	})
+	clear(dst)
+	for k := range blocks {
+		for j := range T {
+			dst[j] += g.blockTot[k*T+j]
+		}
+	}
 }
 
 // nodeTotals sums the statistics of rows[start:end] into dst.
