@@ -57,7 +57,21 @@ const (
 	featEnum      = "enum"
 )
 
+// readOnly reports whether the database q reaches was opened read-only.
+func readOnly(ctx context.Context, q interface {
+	QueryRowContext(context.Context, string, ...any) *sql.Row
+}) bool {
+	var ro bool
+	err := q.QueryRowContext(ctx, "SELECT readonly FROM duckdb_databases() WHERE database_name = current_database()").Scan(&ro)
+	return err == nil && ro
+}
+
 func (h *Host) createCatalog(ctx context.Context) error {
+	// A database opened read-only (copse serve --read-only) keeps the catalog it has:
+	// creating or migrating it would fail, and reading and scoring need neither.
+	if readOnly(ctx, h.db) {
+		return nil
+	}
 	_, err := h.db.ExecContext(ctx, `
 CREATE SCHEMA IF NOT EXISTS `+catalogSchema+`;
 CREATE TABLE IF NOT EXISTS `+versionTable+` (
@@ -193,11 +207,20 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 	if err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
+	if _, err := tx.ExecContext(ctx, catalogChanged); err != nil {
+		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
+	}
 	if err := tx.Commit(); err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
 	return e, nil
 }
+
+// catalogChanged runs in every transaction that adds or removes model versions. As
+// DDL it moves DuckDB's catalog version on, and DuckDB binds a prepared statement that
+// reads this database's tables again before its next execution: copse_score('name', …)
+// then resolves 'name' to the version that is latest at that execution, not at prepare.
+const catalogChanged = `COMMENT ON TABLE ` + catalogTable + ` IS 'copse models: one row per model version'`
 
 const entryColumns = `name, version, method, task, target, rows, features, trees, oob_metric, oob_value, created_at, size_bytes, source`
 
@@ -332,13 +355,24 @@ func (h *Host) dropModel(ctx context.Context, ref string) (int, error) {
 		q += ` AND version = ?`
 		args = append(args, r.version)
 	}
-	res, err := h.db.ExecContext(ctx, q, args...)
+	tx, err := h.db.BeginTx(ctx, nil)
+	if err != nil {
+		return 0, fmt.Errorf("drop model %q: %w", ref, err)
+	}
+	defer tx.Rollback()
+	res, err := tx.ExecContext(ctx, q, args...)
 	if err != nil {
 		return 0, fmt.Errorf("drop model %q: %w", ref, err)
 	}
 	n, _ := res.RowsAffected()
 	if n == 0 {
 		return 0, fmt.Errorf("%w: %q", ErrNoModel, ref)
+	}
+	if _, err := tx.ExecContext(ctx, catalogChanged); err != nil {
+		return 0, fmt.Errorf("drop model %q: %w", ref, err)
+	}
+	if err := tx.Commit(); err != nil {
+		return 0, fmt.Errorf("drop model %q: %w", ref, err)
 	}
 	h.cache.evict(r.name, r.version)
 	return int(n), nil

@@ -101,7 +101,14 @@ type lazyScorer struct {
 // bindScore binds copse_score(model, row [, class]) and copse_label(model, row). It runs
 // once per call site, also for EXPLAIN and prepare: a constant model name is resolved,
 // loaded (from the cache) and fitted to the row's fields here, so errors surface before
-// any row is read; other names are resolved by the executors.
+// any row is read; other names are resolved by the executors, once per name and site.
+//
+// So 'name' means the version that was latest when the statement was bound, and every
+// row of one execution gets that version. A prepared statement is bound again when the
+// catalog has changed (catalogChanged) if it reads a table or view of this database;
+// one that reads none (only literals, or files through read_parquet and the like) keeps
+// the version it was prepared with until it is prepared again: name a version
+// ('name@3') to make that explicit.
 func (h *Host) bindScore(call duck.ScalarCall, kind outKind) (duck.ScalarExec, error) {
 	fn := kind.funcName()
 	if n := len(call.Args); n != 2 && n != 3 {
@@ -649,13 +656,19 @@ func (s *scorer) run(site *scoreSite, in *duck.ScalarInput, out *duck.ScalarOutp
 // and uncommitted rows, streams, and runs on DuckDB's threads.
 const (
 	predictSQLFunc = "copse_predict_sql"
-	predictAlias   = "copse_row" // the source row as a struct
+	predictAlias   = "copse_row" // the source in the FROM clause
+	// predictRow is the source row as a STRUCT, built from the columns themselves: a
+	// table alias used as the row would lose to a source column of the same name.
+	predictRow = "struct_pack(*COLUMNS(*))"
 )
 
 // registerPredict creates the copse_predict macro in the database's main schema. DuckDB
 // keeps macros in its catalog (a file database stores it); CREATE OR REPLACE keeps that
 // current with this build.
 func (h *Host) registerPredict(conn *sql.Conn) error {
+	if readOnly(context.Background(), conn) {
+		return nil // a read-only database keeps the macro it was given when written
+	}
 	_, err := conn.ExecContext(context.Background(), `CREATE OR REPLACE MACRO copse_predict(model, source) AS TABLE
 		FROM query(`+predictSQLFunc+`(model, source))`)
 	if err != nil {
@@ -708,9 +721,11 @@ func (h *Host) predictQuery(ctx context.Context, ref, source string) (string, er
 		from = "(\n" + strings.TrimRight(src, "; \t\r\n") + "\n) AS " + predictAlias
 	}
 	model := "'" + sqlEscape(fmt.Sprintf("%s@%d", e.Name, e.Version)) + "'"
-	row := predictAlias
+	row := predictRow
 	var b strings.Builder
-	b.WriteString("SELECT " + predictAlias + ".*, ")
+	// The FROM clause holds the source alone, so * and COLUMNS(*) are its columns; a
+	// star qualified by the alias could name a STRUCT column called copse_row instead.
+	b.WriteString("SELECT *, ")
 	switch {
 	case m.Task != forest.Classification:
 		b.WriteString("copse_score(" + model + ", " + row + ") AS prediction")

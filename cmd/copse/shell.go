@@ -115,10 +115,28 @@ func runShell(ctx context.Context, opts *ShellOptions) error {
 	_, stopSession := opts.Interrupts()
 	defer stopSession()
 
-	if opts.IO.InTTY {
+	// Input that is not a terminal (a pipe or a file) is a script: as with `copse sql`,
+	// the first failing statement or shell command ends the shell with its error (exit
+	// code 1, or 130 after Ctrl-C). At a terminal an error is shown and the shell goes on.
+	script := !opts.IO.InTTY
+	if !script {
 		fmt.Fprintln(opts.IO.ErrOut, "copse shell: statements end with ';'. Type .help for help, .quit to leave.")
 	}
+	// failed reports a statement's error at a terminal and returns nil there; in a
+	// script it returns err.
+	failed := func(err error) error {
+		if script {
+			return err
+		}
+		if errors.Is(err, errInterrupted) {
+			fmt.Fprintln(opts.IO.ErrOut, "interrupted")
+		} else {
+			fmt.Fprintf(opts.IO.ErrOut, "error: %v\n", err)
+		}
+		return nil
+	}
 	var pending strings.Builder
+	lineNo, first := 0, 0 // the input line just read; the line pending starts on
 	for {
 		prompt := promptFirst
 		if pending.Len() > 0 {
@@ -131,21 +149,34 @@ func runShell(ctx context.Context, opts *ShellOptions) error {
 			continue
 		case errors.Is(err, io.EOF):
 			if strings.TrimSpace(pending.String()) != "" {
-				runStatements(ctx, r, opts.Interrupts, pending.String(), opts.IO.ErrOut)
+				if at, err := runStatements(ctx, r, opts.Interrupts, pending.String(), first); err != nil {
+					return atLine("statement at line", at, failed(err))
+				}
 			}
 			return nil
 		case err != nil:
 			return err
 		}
+		lineNo++
 		if pending.Len() == 0 && strings.HasPrefix(strings.TrimSpace(line), ".") {
 			lines.Remember(strings.TrimSpace(line))
-			if quit := shellCommand(strings.TrimSpace(line), r, opts.IO.Out, opts.IO.ErrOut); quit {
+			quit, err := shellCommand(strings.TrimSpace(line), r, opts.IO.Out)
+			switch {
+			case err != nil && script:
+				return atLine("line", lineNo, err)
+			case err != nil:
+				fmt.Fprintln(opts.IO.ErrOut, err)
+			}
+			if quit {
 				return nil
 			}
 			continue
 		}
 		if pending.Len() == 0 && strings.TrimSpace(line) == "" {
 			continue
+		}
+		if pending.Len() == 0 {
+			first = lineNo
 		}
 		pending.WriteString(line)
 		pending.WriteString("\n")
@@ -155,58 +186,64 @@ func runShell(ctx context.Context, opts *ShellOptions) error {
 		text := pending.String()
 		pending.Reset()
 		lines.Remember(strings.TrimSpace(text))
-		runStatements(ctx, r, opts.Interrupts, text, opts.IO.ErrOut)
-	}
-}
-
-// runStatements runs the statements of text one by one, each cancelled by a Ctrl-C
-// that arrives while it runs; an error is reported and ends the batch, not the shell.
-func runStatements(ctx context.Context, r *sqlrun.Runner, interrupts func() (<-chan os.Signal, func()), text string, errOut io.Writer) {
-	for _, st := range sqlsplit.Split(text) {
-		stCtx, stop := interruptible(ctx, interrupts)
-		err := r.Statement(stCtx, st)
-		interrupted := stCtx.Err() != nil
-		stop()
-		switch {
-		case err != nil && interrupted:
-			fmt.Fprintln(errOut, "interrupted")
-			return
-		case err != nil:
-			fmt.Fprintf(errOut, "error: %v\n", err)
-			return
+		if at, err := runStatements(ctx, r, opts.Interrupts, text, first); err != nil {
+			if err := failed(err); err != nil {
+				return atLine("statement at line", at, err)
+			}
 		}
 	}
 }
 
-// shellCommand runs one dot command and reports whether the shell should end.
-func shellCommand(line string, r *sqlrun.Runner, out, errOut io.Writer) (quit bool) {
+// atLine prefixes a script's error with the input line it came from; nil stays nil.
+func atLine(what string, line int, err error) error {
+	if err == nil {
+		return nil
+	}
+	return fmt.Errorf("%s %d: %w", what, line, err)
+}
+
+// runStatements runs the statements of text one by one, each cancelled by a Ctrl-C
+// that arrives while it runs (errInterrupted). The first error ends the batch; it comes
+// back with the input line its statement starts on (text starts on line first).
+func runStatements(ctx context.Context, r *sqlrun.Runner, interrupts func() (<-chan os.Signal, func()), text string, first int) (int, error) {
+	for _, st := range sqlsplit.Split(text) {
+		stCtx, stop := interruptible(ctx, interrupts)
+		err := interruptedErr(stCtx, r.Statement(stCtx, st))
+		stop()
+		if err != nil {
+			return first + st.Line - 1, err
+		}
+	}
+	return 0, nil
+}
+
+// shellCommand runs one dot command and reports whether the shell should end; a
+// mistake in the command is its error.
+func shellCommand(line string, r *sqlrun.Runner, out io.Writer) (quit bool, err error) {
 	fields := strings.Fields(line)
 	switch fields[0] {
 	case ".quit":
-		return true
+		return true, nil
 	case ".help":
 		fmt.Fprint(out, shellHelp)
 	case ".timer":
 		if len(fields) != 2 || (fields[1] != "on" && fields[1] != "off") {
-			fmt.Fprintln(errOut, "usage: .timer on|off")
-			return false
+			return false, errors.New("usage: .timer on|off")
 		}
 		r.Timer = fields[1] == "on"
 	case ".format":
 		if len(fields) != 2 {
-			fmt.Fprintln(errOut, "usage: .format table|csv|json|markdown")
-			return false
+			return false, errors.New("usage: .format table|csv|json|markdown")
 		}
 		f, err := sqlrun.ParseFormat(fields[1])
 		if err != nil {
-			fmt.Fprintf(errOut, "error: %v\n", err)
-			return false
+			return false, err
 		}
 		r.Format = f
 	default:
-		fmt.Fprintf(errOut, "unknown shell command %s (try .help)\n", fields[0])
+		return false, fmt.Errorf("unknown shell command %s (try .help)", fields[0])
 	}
-	return false
+	return false, nil
 }
 
 // plainLines reads lines from a non-terminal input, showing no prompt.
@@ -251,7 +288,11 @@ func (e *editor) ReadLine(prompt string) (string, error) {
 }
 
 func (e *editor) Remember(entry string) {
-	// A statement typed over several lines comes back as one line.
+	// A statement typed over several lines comes back as one line: liner keeps one
+	// history entry per line of its file (a newline would split the entry at the next
+	// start) and draws the line being edited as one run of glyphs (a newline in it
+	// would garble the display). Joined, a "--" comment runs on to the end of the
+	// entry; edit such an entry before running it again.
 	e.st.AppendHistory(strings.ReplaceAll(entry, "\n", " "))
 }
 

@@ -4,6 +4,7 @@ import (
 	"context"
 	"io"
 	"os"
+	"strings"
 	"testing"
 	"time"
 )
@@ -55,6 +56,7 @@ func TestShellParse(t *testing.T) {
 
 func TestShellRun(t *testing.T) {
 	d, out, errOut := testDeps("")
+	d.IO.InTTY = true // typed at a terminal: an error is shown and the shell goes on
 	lines := &scriptedLines{lines: []any{
 		".help",
 		"SELECT 1 AS a,",
@@ -84,7 +86,8 @@ func TestShellRun(t *testing.T) {
 		"c\n-\n2\n1 row\n\n"+
 		"\ne\n4\n"+ // csv separates its tables with a blank line
 		"\nf\n5\n")
-	checkOutput(t, "stderr", errOut, "time: 0.250 s\n"+
+	checkOutput(t, "stderr", errOut, "copse shell: statements end with ';'. Type .help for help, .quit to leave.\n"+
+		"time: 0.250 s\n"+
 		"error: Catalog Error: Table with name missing_table does not exist!\nDid you mean \"pg_tables\"?\n\nLINE 1: SELECT * FROM missing_table\n                      ^\n"+
 		"unknown shell command .bogus (try .help)\n"+
 		"usage: .timer on|off\n")
@@ -115,6 +118,7 @@ func TestShellRun(t *testing.T) {
 
 func TestShellInterruptsStatementNotShell(t *testing.T) {
 	d, out, errOut := testDeps("")
+	d.IO.InTTY = true
 	lines := &scriptedLines{lines: []any{
 		"SELECT count(*) FROM range(1000000000000);",
 		"SELECT 'still here' AS s;",
@@ -137,7 +141,7 @@ func TestShellInterruptsStatementNotShell(t *testing.T) {
 		t.Fatal(err)
 	}
 	checkOutput(t, "stdout", out, "s\n----------\nstill here\n1 row\n\n")
-	checkOutput(t, "stderr", errOut, "interrupted\n")
+	checkOutput(t, "stderr", errOut, "copse shell: statements end with ';'. Type .help for help, .quit to leave.\ninterrupted\n")
 }
 
 func TestShellPlainInput(t *testing.T) {
@@ -148,4 +152,49 @@ func TestShellPlainInput(t *testing.T) {
 	}
 	checkOutput(t, "stdout", out, "n\n-\n7\n1 row\n\nm\n-\n8\n1 row\n\n")
 	checkOutput(t, "stderr", errOut, "")
+}
+
+// TestShellPlainInputFails: with input that is not a terminal (a pipe or a file) the
+// shell runs like `copse sql`: the first failing statement or shell command ends it
+// with exit code 1, naming the input line, and nothing after it runs.
+func TestShellPlainInputFails(t *testing.T) {
+	tests := []struct {
+		name, in, out, errPrefix string
+	}{
+		{"statement", "SELECT 1 AS a;\nSELECT * FROM\n  missing_table;\nSELECT 2 AS b;\n",
+			"a\n-\n1\n1 row\n\n", "copse: statement at line 2: Catalog Error: Table with name missing_table does not exist!"},
+		{"second on a line", "SELECT 1 AS a; SELECT x FROM missing_table; SELECT 2 AS b;\n",
+			"a\n-\n1\n1 row\n\n", "copse: statement at line 1: Catalog Error: Table with name missing_table does not exist!"},
+		{"unfinished at the end", "SELECT 1 AS a;\n\nSELECT nope\n",
+			"a\n-\n1\n1 row\n\n", "copse: statement at line 3: Binder Error: Referenced column \"nope\" was not found"},
+		{"shell command", "SELECT 1 AS a;\n.bogus\nSELECT 2 AS b;\n",
+			"a\n-\n1\n1 row\n\n", "copse: line 2: unknown shell command .bogus (try .help)\n"},
+		{"shell command usage", ".timer maybe\nSELECT 2 AS b;\n", "", "copse: line 1: usage: .timer on|off\n"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			d, out, errOut := testDeps(tt.in)
+			if code := runCmd(t, d, "shell"); code != exitError {
+				t.Errorf("exit code %d, want %d", code, exitError)
+			}
+			checkOutput(t, "stdout", out, tt.out)
+			if !strings.HasPrefix(errOut.String(), tt.errPrefix) {
+				t.Errorf("stderr %q, want it to start with %q", errOut.String(), tt.errPrefix)
+			}
+		})
+	}
+}
+
+// TestShellPlainInputInterrupted: Ctrl-C during a statement read from a pipe ends the
+// shell with the exit code `copse sql` gives.
+func TestShellPlainInputInterrupted(t *testing.T) {
+	d, out, errOut := testDeps("SELECT count(*) FROM range(1000000000000);\nSELECT 'not reached' AS s;\n")
+	d.Interrupts = pressedInterrupts
+	if code := runCmd(t, d, "shell"); code != exitInterrupted {
+		t.Errorf("exit code %d, want %d", code, exitInterrupted)
+	}
+	checkOutput(t, "stdout", out, "")
+	if !strings.HasPrefix(errOut.String(), "copse: interrupted") {
+		t.Errorf("stderr %q, want it to start with %q", errOut.String(), "copse: interrupted")
+	}
 }
