@@ -66,6 +66,8 @@ func New(ctx context.Context, db *sql.DB) (*Host, error) {
 		h.registerScoring,
 		h.registerRelations,
 		h.registerBlends,
+		h.registerEvaluation,
+		h.registerExplain,
 	} {
 		if err := register(conn); err != nil {
 			return nil, fmt.Errorf("udf: register: %w", err)
