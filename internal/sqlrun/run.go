@@ -30,8 +30,15 @@ type Runner struct {
 	// Now is the clock for Timer; nil means time.Now.
 	Now func() time.Time
 
-	results int // result sets written so far
+	results   int  // result sets written so far
+	cautioned bool // the reasons caution has been written
 }
+
+// reasonsCaution is written (once per Runner, on Status) after a statement that asks
+// copse_reasons for the reasons behind scores.
+const reasonsCaution = "note: reasons are the inputs that pushed a score most toward an outcome in the model — associations, not causes. " +
+	"Reasons given to a person about a decision (credit, pricing, claims) must follow local rules and licensed practice, " +
+	"and an adverse decision may need human review."
 
 // StatementError is a statement that failed, with the line where it starts.
 type StatementError struct {
@@ -103,6 +110,10 @@ func (r *Runner) Statement(ctx context.Context, st sqlsplit.Statement) error {
 	}
 	if r.Timer && r.Status != nil {
 		fmt.Fprintf(r.Status, "time: %.3f s\n", elapsed.Seconds())
+	}
+	if !r.cautioned && r.Status != nil && strings.Contains(strings.ToLower(st.SQL), "copse_reasons") {
+		r.cautioned = true
+		fmt.Fprintln(r.Status, reasonsCaution)
 	}
 	return nil
 }

@@ -241,3 +241,32 @@ func TestRunnerCancel(t *testing.T) {
 		t.Errorf("printed %q for a cancelled statement", out.String())
 	}
 }
+
+// A statement that asks for reasons is followed, once per runner, by the caution on
+// Status (here a macro stands in for the copse function of that name).
+func TestRunnerReasonsCaution(t *testing.T) {
+	var out, status bytes.Buffer
+	r := &Runner{Conn: openConn(t), Out: &out, Status: &status, Format: FormatTable}
+	script := "CREATE MACRO copse_reasons(x) AS x;\nSELECT 1 AS plain;\n"
+	if err := r.Script(context.Background(), script); err != nil {
+		t.Fatal(err)
+	}
+	if got := strings.Count(status.String(), "must follow local rules"); got != 1 {
+		t.Fatalf("caution written %d times after the first script, want 1: %q", got, status.String())
+	}
+	status.Reset()
+	if err := r.Script(context.Background(), "SELECT copse_reasons(2) AS r;\nSELECT 3 AS plain;\n"); err != nil {
+		t.Fatal(err)
+	}
+	if strings.Contains(status.String(), "local rules") {
+		t.Errorf("caution repeated: %q", status.String())
+	}
+	other := &Runner{Conn: openConn(t), Out: &out, Status: &status, Format: FormatTable}
+	status.Reset()
+	if err := other.Script(context.Background(), "SELECT 4 AS plain;"); err != nil {
+		t.Fatal(err)
+	}
+	if strings.Contains(status.String(), "local rules") {
+		t.Errorf("caution without copse_reasons: %q", status.String())
+	}
+}
