@@ -68,6 +68,7 @@ func New(ctx context.Context, db *sql.DB) (*Host, error) {
 		h.registerBlends,
 		h.registerEvaluation,
 		h.registerExplain,
+		h.registerValidation,
 	} {
 		if err := register(conn); err != nil {
 			return nil, fmt.Errorf("udf: register: %w", err)
