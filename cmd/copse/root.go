@@ -154,6 +154,7 @@ func newRootCmd(d *Deps) *cobra.Command {
 		newSQLCmd(d, nil),
 		newShellCmd(d, nil),
 		newDemoCmd(d, nil),
+		newPlotCmd(d, nil),
 	)
 }
 
