@@ -155,6 +155,7 @@ func newRootCmd(d *Deps) *cobra.Command {
 		newShellCmd(d, nil),
 		newDemoCmd(d, nil),
 		newPlotCmd(d, nil),
+		newServeCmd(d, nil),
 	)
 }
 
