@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -396,5 +397,91 @@ func TestBoostingTrainingScoresMatchPrediction(t *testing.T) {
 		if math.Abs(got-want) > 1e-13*want {
 			t.Errorf("row fraction %g: loss from predictions %v, training loss %v", rowFraction, got, want)
 		}
+	}
+}
+
+// Best-first growth (LeafLimit): each tree has at most that many leaves, a limit no
+// tree reaches grows the same splits as depth-first growth (the same predictions), a
+// limit of 2 keeps the root's split, and the model does not depend on the threads.
+func TestBoostingLeafLimit(t *testing.T) {
+	d := noisyData(t, 3000, true)
+	base := DefaultParams(MethodBoosting)
+	base.Trees, base.MaxDepth, base.Threads, base.Seed = 12, 4, 1, 5
+	depthFirst, err := Train(context.Background(), d, base)
+	if err != nil {
+		t.Fatal(err)
+	}
+	leaves := func(tr *Tree) int {
+		n := 0
+		for i := range tr.Nodes {
+			if tr.Nodes[i].IsLeaf() {
+				n++
+			}
+		}
+		return n
+	}
+	cols := make([][]float64, len(depthFirst.Features))
+	for f, fi := range depthFirst.Features {
+		cols[f] = d.features[f].num
+		if fi.Kind == Categorical {
+			t.Fatal("noisyData is numeric")
+		}
+	}
+	predict := func(m *Model) []float64 {
+		out := make([]float64, d.rows*m.Width())
+		if err := m.Predict(cols, out, 1); err != nil {
+			t.Fatal(err)
+		}
+		return out
+	}
+	want := predict(depthFirst)
+	cases := []struct {
+		limit int
+		same  bool // same predictions as depth-first growth
+	}{{16, true}, {1 << 10, true}, {5, false}, {2, false}}
+	for _, c := range cases {
+		p := base
+		p.LeafLimit = c.limit
+		var enc []byte
+		for _, threads := range []int{1, 2} {
+			p.Threads = threads
+			m, err := Train(context.Background(), d, p)
+			if err != nil {
+				t.Fatal(err)
+			}
+			b, err := m.MarshalBinary()
+			if err != nil {
+				t.Fatal(err)
+			}
+			if enc != nil && !bytes.Equal(enc, b) {
+				t.Errorf("leaf limit %d: models differ between 1 and 2 threads", c.limit)
+			}
+			enc = b
+			most := 0
+			for _, tr := range m.Trees {
+				most = max(most, leaves(tr))
+			}
+			if most > c.limit {
+				t.Errorf("leaf limit %d: a tree has %d leaves", c.limit, most)
+			}
+			if c.limit == 2 && (most != 2 || m.Trees[0].Nodes[0].Feature != depthFirst.Trees[0].Nodes[0].Feature) {
+				t.Errorf("leaf limit 2: %d leaves, root feature %d, want 2 and %d", most, m.Trees[0].Nodes[0].Feature, depthFirst.Trees[0].Nodes[0].Feature)
+			}
+			got := predict(m)
+			same := slices.Equal(got, want)
+			if same != c.same {
+				t.Errorf("leaf limit %d: predictions equal to depth-first growth: %v, want %v", c.limit, same, c.same)
+			}
+		}
+	}
+	p := base
+	p.LeafLimit = 1
+	if _, err := Train(context.Background(), d, p); err == nil || !strings.Contains(err.Error(), "leaf_limit") {
+		t.Errorf("leaf limit 1: %v, want an error naming leaf_limit", err)
+	}
+	p = DefaultParams(MethodForest)
+	p.LeafLimit = 8
+	if _, err := Train(context.Background(), d, p); err == nil || !strings.Contains(err.Error(), "leaf_limit") {
+		t.Errorf("leaf limit on a forest: %v, want an error naming leaf_limit", err)
 	}
 }

@@ -87,11 +87,11 @@ func TestDecodeVersion2(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds 17 bytes to the params section (the quantile float, an
-	// empty exposure string and the ridge float) and empty sections 8, 9 and 10 (tag
-	// and length: 2 bytes each).
-	if len(b) != len(old)+17+2+2+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+17+2+2+2)
+	// Today's encoding adds 18 bytes to the params section (the quantile float, an
+	// empty exposure string, the ridge float and the leaf_limit varint) and empty
+	// sections 8, 9 and 10 (tag and length: 2 bytes each).
+	if len(b) != len(old)+18+2+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+18+2+2+2)
 	}
 	m3, err := Decode(b)
 	if err != nil {
@@ -126,10 +126,10 @@ func TestDecodeVersion3(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds the ridge float to the params section and empty sections 8,
-	// 9 and 10: a tag and a zero length each.
-	if len(b) != len(old)+8+2+2+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2+2)
+	// Today's encoding adds the ridge float and the leaf_limit varint to the params
+	// section and empty sections 8, 9 and 10: a tag and a zero length each.
+	if len(b) != len(old)+9+2+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9+2+2+2)
 	}
 	m4, err := Decode(b)
 	if err != nil {
@@ -171,10 +171,10 @@ func TestDecodeVersion4(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds the ridge float to the params section and empty sections 9
-	// and 10: a tag and a zero length each.
-	if len(b) != len(old)+8+2+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+8+2+2)
+	// Today's encoding adds the ridge float and the leaf_limit varint to the params
+	// section and empty sections 9 and 10: a tag and a zero length each.
+	if len(b) != len(old)+9+2+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+9+2+2)
 	}
 	m5, err := Decode(b)
 	if err != nil {
@@ -216,9 +216,10 @@ func TestDecodeVersion5(t *testing.T) {
 	if b[4] != encodingVersion {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
-	// Today's encoding adds an empty section 10: its tag and a zero length.
-	if len(b) != len(old)+2 {
-		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+2)
+	// Today's encoding adds the leaf_limit varint to the params section and an empty
+	// section 10: its tag and a zero length.
+	if len(b) != len(old)+1+2 {
+		t.Errorf("re-encoded to %d bytes, want %d", len(b), len(old)+1+2)
 	}
 	m6, err := Decode(b)
 	if err != nil {
@@ -261,8 +262,9 @@ func TestDecodeVersion6(t *testing.T) {
 		t.Fatalf("re-encoded as version %d, want %d", b[4], encodingVersion)
 	}
 	// Today's encoding adds the fitted byte (0) to section 10, whose length uvarint may
-	// grow by a byte; the members' encodings keep their lengths.
-	if len(b) <= len(old) || len(b) > len(old)+2 {
+	// grow by a byte, and the leaf_limit varint to the params of the blend and of each
+	// of its members (whose length prefixes may grow by a byte too).
+	if limit := len(old) + 2 + 1 + 2*len(m6.Blend.Members); len(b) <= len(old) || len(b) > limit {
 		t.Errorf("re-encoded to %d bytes from %d", len(b), len(old))
 	}
 	m7, err := Decode(b)
@@ -281,4 +283,37 @@ func TestDecodeVersion6(t *testing.T) {
 	encSameFloats(t, "Predict", b6, b7)
 	encSameFloats(t, "PredictRow", r6, r7)
 	encSameFloats(t, "Predict against PredictRow", b6, r6)
+}
+
+// A model written in format version 7 (before best-first growth) decodes with no leaf
+// limit, and today's encoding of it adds only the leaf_limit varint (one byte).
+func TestDecodeVersion7(t *testing.T) {
+	old, err := os.ReadFile("testdata/models/breast-cancer-boosting.v7.cpsm")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if old[4] != 7 {
+		t.Fatalf("fixture is format version %d, want 7", old[4])
+	}
+	m7, err := Decode(old)
+	if err != nil {
+		t.Fatalf("decode version 7: %v", err)
+	}
+	if m7.Params.LeafLimit != 0 || m7.Boost == nil {
+		t.Fatalf("version 7 model: leaf limit %d, boost %v", m7.Params.LeafLimit, m7.Boost)
+	}
+	b, err := m7.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b[4] != encodingVersion || len(b) != len(old)+1 {
+		t.Fatalf("re-encoded as version %d in %d bytes, want version %d in %d", b[4], len(b), encodingVersion, len(old)+1)
+	}
+	cur, err := Decode(corpusBytes(t, "testdata/fuzz/FuzzDecode/seed-breast-cancer-boosting"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if diff := modelDiff(m7, cur); diff != "" {
+		t.Errorf("the version-7 model differs from today's seed in %s", diff)
+	}
 }

@@ -30,7 +30,8 @@ package forest
 //	                 (0 or 1), bins varint, seed uvarint, permutation_rows varint,
 //	                 loss string, learning_rate float, leaf_penalty float,
 //	                 holdout_fraction float, patience varint, quantile float and
-//	                 exposure string (since 3), ridge float (since 5)
+//	                 exposure string (since 3), ridge float (since 5), leaf_limit
+//	                 varint (since 8)
 //	3    features    count uvarint, then per feature: name string, kind byte (1 numeric,
 //	                 2 categorical), levels list of string, bin upper edges list of float,
 //	                 level bins list of uint16, bin counts list of float
@@ -84,7 +85,7 @@ import (
 
 const (
 	encodingMagic   = "CPSM"
-	encodingVersion = 7
+	encodingVersion = 8
 	encodingHead    = len(encodingMagic) + 2 // magic and version
 	encodingSum     = 4                      // checksum
 )
@@ -314,6 +315,7 @@ func (w *encWriter) params(m *Model) {
 	w.float(p.Quantile)
 	w.str(p.Exposure)
 	w.float(p.Ridge)
+	w.varint(int64(p.LeafLimit))
 }
 
 func (w *encWriter) features(m *Model) {
@@ -664,6 +666,10 @@ func (r *encReader) params(m *Model) {
 		return // version 4 predates the linear baseline
 	}
 	p.Ridge = r.float("ridge")
+	if r.version < 8 {
+		return // version 7 predates best-first growth
+	}
+	p.LeafLimit = r.signed("leaf_limit")
 }
 
 func (r *encReader) features(m *Model) {

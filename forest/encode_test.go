@@ -376,7 +376,7 @@ func TestEncodeCoversEveryField(t *testing.T) {
 		// Threads and Progress are not stored: they never change the model.
 		reflect.TypeFor[Params](): {"Method", "Task", "Impurity", "Trees", "MaxDepth", "MinLeaf", "MinGain",
 			"FeaturesPerSplit", "RowFraction", "WithReplacement", "Bins", "Seed", "Threads", "PermutationRows", "Progress",
-			"Loss", "LearningRate", "LeafPenalty", "HoldoutFraction", "Patience", "Quantile", "Exposure", "Ridge"},
+			"Loss", "LearningRate", "LeafPenalty", "HoldoutFraction", "Patience", "Quantile", "Exposure", "Ridge", "LeafLimit"},
 	}
 	for typ, names := range want {
 		var have []string
@@ -455,7 +455,7 @@ func encHandSections() [][]encField {
 			{"p.bins", encSv(255)}, {"p.seed", encUv(1)}, {"p.permutation_rows", encSv(10000)},
 			{"p.loss", encStr("")}, {"p.learning_rate", encF64(0)}, {"p.leaf_penalty", encF64(0)},
 			{"p.holdout_fraction", encF64(0)}, {"p.patience", encSv(0)},
-			{"p.quantile", encF64(0)}, {"p.exposure", encStr("")}, {"p.ridge", encF64(0)}},
+			{"p.quantile", encF64(0)}, {"p.exposure", encStr("")}, {"p.ridge", encF64(0)}, {"p.leaf_limit", encSv(0)}},
 		{{"features", encUv(1)}, {"f.name", encStr("x")}, {"f.kind", []byte{1}}, {"f.levels", encUv(0)},
 			{"f.upper", encJoin(encUv(3), encF64(1.5, math.Inf(1)))}, {"f.level_bins", encUv(0)}, {"f.counts", encJoin(encUv(4), encF64(0, 2, 2))}},
 		trees,

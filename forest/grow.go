@@ -70,6 +70,8 @@ type growConfig struct {
 	minLeaf  float64
 	minGain  float64 // share of the root weight
 	drawn    int     // features drawn per split
+	// leafLimit, when above 0, grows trees best first up to this many leaves.
+	leafLimit int
 	// threads splits the drawn features of large nodes between goroutines (boosting,
 	// whose rounds run one at a time). Each bin's sum still runs over the rows in order,
 	// so the histograms are the same on any number of threads.
@@ -209,6 +211,9 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 	// Gains are differences of sums over the node; allow for their rounding.
 	tol := 1e-12 * math.Max(1, math.Abs(set.score(g.totals[:set.stat])))
 
+	if g.cfg.leafLimit > 0 {
+		return g.growBestFirst(t, minGain-tol)
+	}
 	for len(g.stack) > 0 {
 		if g.cancel != nil && g.cancel.Load() {
 			return nil, errStopped
@@ -217,52 +222,134 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 		e := g.stack[k]
 		g.stack = g.stack[:k]
 		copy(g.cur, g.totals[k*T:(k+1)*T])
-		w := g.weight(g.cur)
-		t.Cover[e.node] = w
-		g.setValue(t, int(e.node), w)
-		if !g.splittable(e, w) {
-			g.release(e.hist)
-			g.leafRows = append(g.leafRows, leafRange{e.node, e.start, e.end})
+		if !g.evaluateNode(t, &e, minGain-tol) {
 			continue
 		}
+		left, right := g.split(t, e)
+		g.push(right, g.r)
+		g.push(left, g.l)
+	}
+	t.trim()
+	return t, nil
+}
+
+// evaluateNode sets node e's cover and value from its totals in g.cur and looks for its
+// best split (into g.best, building e's histograms when it keeps them). It reports
+// whether the node is to be split; if not, it is a leaf and is recorded as one.
+func (g *grower) evaluateNode(t *Tree, e *pending, least float64) bool {
+	set := g.set
+	w := g.weight(g.cur)
+	t.Cover[e.node] = w
+	g.setValue(t, int(e.node), w)
+	if g.splittable(*e, w) {
 		g.parentScore = set.score(g.cur[:set.stat])
 		if g.subtract && e.hist < 0 {
 			e.hist = g.acquire()
 			g.buildAll(g.pool[e.hist], int(e.start), int(e.end))
 		}
-		g.findSplit(e)
-		if !g.best.valid() || g.best.gain < minGain-tol {
-			g.release(e.hist)
-			g.leafRows = append(g.leafRows, leafRange{e.node, e.start, e.end})
-			continue
+		g.findSplit(*e)
+		if g.best.valid() && g.best.gain >= least {
+			return true
 		}
-		nl := g.partition(e, &g.best)
-		mid := e.start + int32(nl)
-		if !g.best.hasMissing {
-			// No missing values here: send future ones to the heavier side.
-			g.best.missingLeft = g.weight(g.l) >= g.weight(g.r)
+	}
+	g.release(e.hist)
+	g.leafRows = append(g.leafRows, leafRange{e.node, e.start, e.end})
+	return false
+}
+
+// split applies g.best to node e: it partitions the rows (children's totals into g.l
+// and g.r), adds the two children and fills in the node, and returns the children,
+// with their histograms when the grower keeps them and they may split again.
+func (g *grower) split(t *Tree, e pending) (left, right pending) {
+	set := g.set
+	nl := g.partition(e, &g.best)
+	mid := e.start + int32(nl)
+	if !g.best.hasMissing {
+		// No missing values here: send future ones to the heavier side.
+		g.best.missingLeft = g.weight(g.l) >= g.weight(g.r)
+	}
+	l := t.addNode(t.Width)
+	t.addNode(t.Width)
+	n := &t.Nodes[e.node]
+	n.Left, n.Feature = l, int32(g.best.feature)
+	n.DefaultLeft = g.best.missingLeft
+	t.Gain[e.node] = math.Max(g.best.gain, 0)
+	if g.best.categorical {
+		n.LevelSet = int32(len(t.LevelSets))
+		t.LevelSets = append(t.LevelSets, g.levelSet(&g.best))
+	} else {
+		n.Threshold = set.bins[g.best.feature].Upper[g.best.bin-1]
+	}
+	d := e.depth + 1
+	lh, rh := int32(-1), int32(-1)
+	if g.cfg.maxDepth == 0 || int(d) < g.cfg.maxDepth {
+		lh, rh = g.childHistograms(e.hist, int(e.start), int(mid), int(e.end))
+	} else {
+		g.release(e.hist) // the children are leaves
+	}
+	return pending{node: l, start: e.start, end: mid, depth: d, hist: lh},
+		pending{node: l + 1, start: mid, end: e.end, depth: d, hist: rh}
+}
+
+// candidate is a node of best-first growth whose best split is known: the split, a
+// copy of g.best, waits until the node's turn comes or the leaf limit ends growth.
+type candidate struct {
+	e      pending
+	totals []float64
+	best   splitInfo
+}
+
+// growBestFirst grows t by always splitting the leaf whose best split gains most, until
+// the tree has cfg.leafLimit leaves or no leaf can split (best-first growth, as in
+// Friedman 2001's boosting with J terminal nodes). Ties go to the lower node ID, so the
+// tree does not depend on anything but the data. The root is on g.stack with its
+// totals in g.totals.
+func (g *grower) growBestFirst(t *Tree, least float64) (*Tree, error) {
+	T := g.set.totalWidth
+	var queue []candidate
+	// offer evaluates node e with totals tot and queues it if it can split.
+	offer := func(e pending, tot []float64) {
+		copy(g.cur, tot)
+		if !g.evaluateNode(t, &e, least) {
+			return
 		}
-		left := t.addNode(width)
-		t.addNode(width)
-		n := &t.Nodes[e.node]
-		n.Left, n.Feature = left, int32(g.best.feature)
-		n.DefaultLeft = g.best.missingLeft
-		t.Gain[e.node] = math.Max(g.best.gain, 0)
-		if g.best.categorical {
-			n.LevelSet = int32(len(t.LevelSets))
-			t.LevelSets = append(t.LevelSets, g.levelSet(&g.best))
-		} else {
-			n.Threshold = set.bins[g.best.feature].Upper[g.best.bin-1]
+		b := g.best
+		b.leftBins = slices.Clone(b.leftBins)
+		b.present = slices.Clone(b.present)
+		queue = append(queue, candidate{e: e, totals: slices.Clone(tot[:T]), best: b})
+	}
+	offer(g.stack[0], g.totals[:T])
+	g.stack = g.stack[:0]
+	leaves := 1
+	lt, rt := make([]float64, T), make([]float64, T)
+	for len(queue) > 0 {
+		if g.cancel != nil && g.cancel.Load() {
+			return nil, errStopped
 		}
-		d := e.depth + 1
-		lh, rh := int32(-1), int32(-1)
-		if g.cfg.maxDepth == 0 || int(d) < g.cfg.maxDepth {
-			lh, rh = g.childHistograms(e.hist, int(e.start), int(mid), int(e.end))
-		} else {
-			g.release(e.hist) // the children are leaves
+		k := 0
+		for i, c := range queue {
+			if c.best.gain > queue[k].best.gain || (c.best.gain == queue[k].best.gain && c.e.node < queue[k].e.node) {
+				k = i
+			}
 		}
-		g.push(pending{node: left + 1, start: mid, end: e.end, depth: d, hist: rh}, g.r)
-		g.push(pending{node: left, start: e.start, end: mid, depth: d, hist: lh}, g.l)
+		c := queue[k]
+		queue = slices.Delete(queue, k, k+1)
+		if leaves >= g.cfg.leafLimit {
+			// The limit is reached: this node and every other waiting one stay leaves.
+			for _, r := range append(queue, c) {
+				g.release(r.e.hist)
+				g.leafRows = append(g.leafRows, leafRange{r.e.node, r.e.start, r.e.end})
+			}
+			break
+		}
+		copy(g.cur, c.totals)
+		g.best = c.best
+		left, right := g.split(t, c.e)
+		leaves++
+		copy(lt, g.l)
+		copy(rt, g.r)
+		offer(left, lt)
+		offer(right, rt)
 	}
 	t.trim()
 	return t, nil

@@ -170,6 +170,10 @@ type Params struct {
 	HoldoutFraction float64
 	// Patience is how many rounds without a better holdout loss end boosting.
 	Patience int
+	// LeafLimit, when above 0, grows each boosted tree best first: the leaf whose best
+	// split gains most splits next, until the tree has this many leaves (MaxDepth still
+	// applies). 0 grows every node that can split, depth first. Boosting only; ≥ 0.
+	LeafLimit int
 	// Quantile is the level α of LossQuantile, in (0, 1); 0 takes DefaultQuantile. Other
 	// losses leave it 0.
 	Quantile float64
@@ -300,7 +304,13 @@ func (p Params) validateAdaBoost() error {
 
 // validateBoosting checks the boosting controls, and that other methods leave them unset.
 func (p Params) validateBoosting() error {
+	if p.LeafLimit < 0 || p.LeafLimit == 1 {
+		return fmt.Errorf("forest: leaf_limit %d: want 0 (no limit) or 2 or more", p.LeafLimit)
+	}
 	if p.Method != MethodBoosting {
+		if p.LeafLimit != 0 {
+			return fmt.Errorf("forest: leaf_limit %d: only method %q grows trees best first", p.LeafLimit, MethodBoosting)
+		}
 		if p.Loss != "" {
 			return fmt.Errorf("forest: loss %q: only method %q takes a loss", p.Loss, MethodBoosting)
 		}

@@ -94,7 +94,7 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 	stored.Task = task
 	m.Params = stored
 
-	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, drawn: drawn}
+	cfg := growConfig{maxDepth: p.MaxDepth, minLeaf: p.MinLeaf, minGain: p.MinGain, drawn: drawn, leafLimit: p.LeafLimit}
 	fr := &fitRun{d: d, set: set, p: p, cfg: cfg, stop: &stop}
 	switch p.Method {
 	case MethodBoosting:

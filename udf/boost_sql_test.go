@@ -1,6 +1,7 @@
 package udf
 
 import (
+	"context"
 	"database/sql"
 	"math"
 	"math/rand/v2"
@@ -316,6 +317,9 @@ func TestBoostSQLBadOptions(t *testing.T) {
 		{"CALL copse_train('m', 'fr', target := 'y', holdout_fraction := 0.2)", []string{"holdout_fraction", "'forest'", "'boosting'"}},
 		{"CALL copse_train('m', 'fr', target := 'y', method := 'forest', patience := 3)", []string{"patience", "'forest'", "'boosting'"}},
 		{"CALL copse_train('m', 'fr', target := 'y', method := 'boost')", []string{`method "boost"`, "'boosting'"}},
+		{"CALL copse_train('m', " + ok + ", leaf_limit := 1)", []string{"leaf_limit 1", "2 or more"}},
+		{"CALL copse_train('m', " + ok + ", leaf_limit := 3.5)", []string{"leaf_limit 3.5", "whole number"}},
+		{"CALL copse_train('m', 'fr', target := 'y', leaf_limit := 8)", []string{"leaf_limit", "'forest'", "'boosting'"}},
 	} {
 		trWantErr(t, db, tc.q, tc.want...)
 	}
@@ -597,4 +601,24 @@ func encodeModel(t testing.TB, m *forest.Model) []byte {
 		t.Fatal(err)
 	}
 	return b
+}
+
+// leaf_limit := n grows boosted trees best first: copse_trees shows no tree with more
+// than n leaves, and the limit is kept with the model.
+func TestBoostSQLLeafLimit(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	trExec(t, db, "CREATE TABLE fr AS SELECT * FROM read_csv('../testdata/friedman1_train.csv')")
+	trRows(t, db, "CALL copse_train('lim', 'fr', target := 'y', method := 'boosting', trees := 10, max_depth := 6, leaf_limit := 5)")
+	got := trRows(t, db, "SELECT max(n), min(n), count(*) FROM (SELECT tree, count(*) AS n FROM copse_trees('lim') WHERE \"left\" IS NULL GROUP BY tree)")
+	if len(got) != 1 || got[0][0] != "5" || got[0][2] != "10" {
+		t.Errorf("leaves per tree (max, min, trees): %v, want max 5 over 10 trees", got)
+	}
+	m, _, err := h.loadModel(context.Background(), "lim")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Params.LeafLimit != 5 {
+		t.Errorf("stored leaf limit %d, want 5", m.Params.LeafLimit)
+	}
 }

@@ -40,6 +40,7 @@ var trainOptions = []duck.Param{
 	{Name: "leaf_penalty", Type: duck.Double},
 	{Name: "holdout_fraction", Type: duck.Double},
 	{Name: "patience", Type: duck.Double},
+	{Name: "leaf_limit", Type: duck.Double},
 	{Name: "quantile", Type: duck.Double},
 	{Name: "exposure", Type: duck.Varchar},
 	// Linear only.
@@ -51,7 +52,7 @@ var treeOptions = []string{"trees", "max_depth", "min_leaf", "min_gain", "impuri
 	"row_fraction", "with_replacement", "bins"}
 
 // boostOptions are the options only method 'boosting' takes.
-var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience", "quantile", "exposure"}
+var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience", "leaf_limit", "quantile", "exposure"}
 
 // Task option values; "auto" lets the target's type decide.
 const (
@@ -263,7 +264,7 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 		{"features_per_split", nil, &p.FeaturesPerSplit}, {"row_fraction", nil, &p.RowFraction},
 		{"learning_rate", nil, &p.LearningRate}, {"leaf_penalty", nil, &p.LeafPenalty},
 		{"holdout_fraction", nil, &p.HoldoutFraction}, {"patience", &p.Patience, nil},
-		{"quantile", nil, &p.Quantile}, {"ridge", nil, &p.Ridge},
+		{"leaf_limit", &p.LeafLimit, nil}, {"quantile", nil, &p.Quantile}, {"ridge", nil, &p.Ridge},
 	} {
 		var err error
 		if o.i != nil {
