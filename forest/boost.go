@@ -113,6 +113,9 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 	if p.HoldoutFraction > 0 && len(br.holdout) == 0 {
 		return nil, nil, fmt.Errorf("forest: holdout_fraction %g: no rows with positive weight were held out", p.HoldoutFraction)
 	}
+	if d.holdout != nil && len(br.holdout) == 0 {
+		return nil, nil, errors.New("forest: holdout rows: none of the marked rows has positive weight")
+	}
 	init := []float64{0}
 	if K > 1 {
 		init = br.classPriors()
@@ -217,8 +220,9 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 	return trees[:kept:kept], b, nil
 }
 
-// split draws the holdout: a seeded share of the rows with positive weight, drawn per
-// class for classification so that both sides keep the class mix.
+// split takes the holdout: the rows the data set marks, or a seeded share of the rows
+// with positive weight, drawn per class for classification so that both sides keep the
+// class mix.
 func (br *boostRun) split(p Params) {
 	d := br.fr.d
 	groups := 1
@@ -229,7 +233,9 @@ func (br *boostRun) split(p Params) {
 		groups = br.K
 	}
 	hold := make([]bool, d.rows)
-	if p.HoldoutFraction > 0 {
+	if d.holdout != nil {
+		copy(hold, d.holdout)
+	} else if p.HoldoutFraction > 0 {
 		rng := rand.New(rand.NewPCG(treeSeed(p.Seed, 0, streamHoldout), 0))
 		for c := range groups {
 			var idx []int32

@@ -485,3 +485,64 @@ func TestBoostingLeafLimit(t *testing.T) {
 		t.Errorf("leaf limit on a forest: %v, want an error naming leaf_limit", err)
 	}
 }
+
+// Holdout rows marked in the data set (SetHoldout) are the ones boosting stops on: the
+// model equals one trained on the other rows alone with the same early stopping record
+// shape, and its holdout curve is the loss on exactly those rows.
+func TestBoostingMarkedHoldout(t *testing.T) {
+	d := noisyData(t, 2000, true)
+	mask := make([]bool, d.rows)
+	for i := range mask {
+		mask[i] = i%4 == 0
+	}
+	if err := d.SetHoldout(mask); err != nil {
+		t.Fatal(err)
+	}
+	p := DefaultParams(MethodBoosting)
+	p.Trees, p.MaxDepth, p.Patience, p.Threads = 60, 3, 5, 2
+	m, err := Train(context.Background(), d, p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := m.Boost
+	if len(b.HoldoutLoss) != b.Rounds || b.BestRound < 1 || b.BestRound > b.Rounds {
+		t.Fatalf("boost record: %d rounds, %d holdout losses, best %d", b.Rounds, len(b.HoldoutLoss), b.BestRound)
+	}
+	best := slices.Min(b.HoldoutLoss)
+	if b.HoldoutLoss[b.BestRound-1] != best {
+		t.Errorf("best round %d has holdout loss %g, the least is %g", b.BestRound, b.HoldoutLoss[b.BestRound-1], best)
+	}
+	// The holdout loss of the kept model, recomputed from predictions on the marked
+	// rows, is the curve's value at the best round.
+	cols := make([][]float64, len(m.Features))
+	for f := range cols {
+		cols[f] = d.features[f].num
+	}
+	pred := make([]float64, d.rows*2)
+	if err := m.Predict(cols, pred, 1); err != nil {
+		t.Fatal(err)
+	}
+	ll, n := 0.0, 0
+	for i, held := range mask {
+		if held {
+			ll -= math.Log(pred[2*i+int(d.target.codes[i])])
+			n++
+		}
+	}
+	if got := ll / float64(n); math.Abs(got-best) > 1e-9*best {
+		t.Errorf("log loss on the marked rows %.12g, curve says %.12g", got, best)
+	}
+	for _, bad := range []func(*Params){
+		func(p *Params) { p.HoldoutFraction = 0.2 },
+		func(p *Params) { *p = DefaultParams(MethodForest) },
+	} {
+		q := p
+		bad(&q)
+		if _, err := Train(context.Background(), d, q); err == nil || !strings.Contains(err.Error(), "holdout") {
+			t.Errorf("%+v with marked holdout rows: %v, want an error naming the holdout", q.Method, err)
+		}
+	}
+	if err := d.SetHoldout(mask[:10]); err == nil {
+		t.Error("a short holdout mask was accepted")
+	}
+}

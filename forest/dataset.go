@@ -43,6 +43,7 @@ type Dataset struct {
 	target   column
 	weights  []float64
 	exposure column // Numeric, or unset (kind 0)
+	holdout  []bool // rows boosting holds out to stop early (nil: none marked)
 }
 
 type column struct {
@@ -170,6 +171,17 @@ func (d *Dataset) SetExposure(name string, v []float64) error {
 		}
 	}
 	d.exposure = column{name: name, kind: Numeric, num: v}
+	return nil
+}
+
+// SetHoldout marks the rows that boosting holds out from the trees to stop early on
+// (nil: none), in place of a drawn HoldoutFraction: a validation set of the user's own
+// choosing. Held-out rows still take part in binning, through their inputs only.
+func (d *Dataset) SetHoldout(mask []bool) error {
+	if mask != nil && len(mask) != d.rows {
+		return fmt.Errorf("%w: holdout marks %d rows, want %d", ErrData, len(mask), d.rows)
+	}
+	d.holdout = mask
 	return nil
 }
 

@@ -53,6 +53,14 @@ func Train(ctx context.Context, d *Dataset, p Params) (*Model, error) {
 			p.Quantile = DefaultQuantile
 		}
 	}
+	if d.holdout != nil {
+		switch {
+		case p.Method != MethodBoosting:
+			return nil, fmt.Errorf("forest: holdout rows: method %q does not stop early on a holdout", p.Method)
+		case p.HoldoutFraction != 0:
+			return nil, fmt.Errorf("forest: holdout_fraction %g: the data set marks its own holdout rows; give one or the other", p.HoldoutFraction)
+		}
+	}
 	if e := d.exposure.name; d.exposure.kind != 0 || p.Exposure != "" {
 		switch {
 		case p.Exposure != "" && p.Exposure != e:

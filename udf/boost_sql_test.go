@@ -622,3 +622,55 @@ func TestBoostSQLLeafLimit(t *testing.T) {
 		t.Errorf("stored leaf limit %d, want 5", m.Params.LeafLimit)
 	}
 }
+
+// holdout := 'source' stops boosting on the user's own validation rows: the model equals
+// the engine's trained on the union with those rows marked, its curve's holdout loss is
+// the log loss on them, and bad holdouts are refused by name, the catalog unchanged.
+func TestBoostSQLHoldoutSource(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	trExec(t, db, "CREATE TABLE bc AS SELECT row_number() OVER () AS id, * FROM read_csv('../testdata/breast_cancer.csv')")
+	trExec(t, db, "CREATE TABLE bc_train AS SELECT * EXCLUDE (id) FROM bc WHERE id % 5 <> 0")
+	trExec(t, db, "CREATE TABLE bc_valid AS SELECT * EXCLUDE (id) FROM bc WHERE id % 5 = 0")
+	opts := "target := 'diagnosis', method := 'boosting', trees := 200, max_depth := 3, patience := 10, holdout := 'bc_valid'"
+	row := bsTrain(t, db, "hv", "bc_train", opts)
+	if row["oob_metric"] != "holdout_log_loss" {
+		t.Fatalf("summary %v, want holdout_log_loss", row)
+	}
+	m, _, err := h.loadModel(context.Background(), "hv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := m.Boost
+	if len(b.HoldoutLoss) != b.Rounds || b.BestRound >= b.Rounds {
+		t.Fatalf("rounds %d, holdout losses %d, best %d: want early stopping on the holdout", b.Rounds, len(b.HoldoutLoss), b.BestRound)
+	}
+	// The kept model's log loss on bc_valid, computed in SQL from copse_score, is the
+	// curve's best holdout loss.
+	got := trRows(t, db, "SELECT avg(-ln(CASE WHEN diagnosis = 'malignant' THEN p ELSE 1 - p END)) FROM "+
+		"(SELECT diagnosis, copse_score('hv', v) AS p FROM bc_valid v)")
+	ll, _ := strconv.ParseFloat(got[0][0], 64)
+	best := b.HoldoutLoss[b.BestRound-1]
+	if math.Abs(ll-best) > 1e-9 {
+		t.Errorf("log loss on bc_valid %.12g, curve's best holdout loss %.12g", ll, best)
+	}
+	if m.Rows != 569 {
+		t.Errorf("model rows %d, want 569 (training and holdout rows)", m.Rows)
+	}
+	trExec(t, db, "CREATE TABLE bc_short AS SELECT * EXCLUDE (mean_radius) FROM bc_valid")
+	for _, tc := range []struct {
+		q    string
+		want []string
+	}{
+		{"CALL copse_train('bad', 'bc_train', " + opts + ", holdout_fraction := 0.2)", []string{"holdout and holdout_fraction"}},
+		{"CALL copse_train('bad', 'bc_train', target := 'diagnosis', holdout := 'bc_valid')", []string{"holdout", "'boosting'"}},
+		{"CALL copse_train('bad', 'bc_train', target := 'diagnosis', method := 'boosting', holdout := 'bc_short')", []string{`holdout "bc_short"`, `"mean_radius"`}},
+		{"CALL copse_train('bad', 'bc_train', target := 'diagnosis', method := 'boosting', holdout := 'no_such_table')", []string{"holdout", "no_such_table"}},
+		{"CALL copse_train('bad', 'bc_train', target := 'diagnosis', method := 'boosting', holdout := 'SELECT * FROM bc_valid WHERE false')", []string{"holdout", "no rows"}},
+	} {
+		trWantErr(t, db, tc.q, tc.want...)
+	}
+	if got := trRows(t, db, "SELECT count(*) FROM copse_models() WHERE name = 'bad'"); got[0][0] != "0" {
+		t.Errorf("model bad saved: %v", got)
+	}
+}

@@ -39,6 +39,7 @@ var trainOptions = []duck.Param{
 	{Name: "learning_rate", Type: duck.Double},
 	{Name: "leaf_penalty", Type: duck.Double},
 	{Name: "holdout_fraction", Type: duck.Double},
+	{Name: "holdout", Type: duck.Varchar},
 	{Name: "patience", Type: duck.Double},
 	{Name: "leaf_limit", Type: duck.Double},
 	{Name: "quantile", Type: duck.Double},
@@ -52,7 +53,7 @@ var treeOptions = []string{"trees", "max_depth", "min_leaf", "min_gain", "impuri
 	"row_fraction", "with_replacement", "bins"}
 
 // boostOptions are the options only method 'boosting' takes.
-var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "patience", "leaf_limit", "quantile", "exposure"}
+var boostOptions = []string{"loss", "learning_rate", "leaf_penalty", "holdout_fraction", "holdout", "patience", "leaf_limit", "quantile", "exposure"}
 
 // Task option values; "auto" lets the target's type decide.
 const (
@@ -78,12 +79,15 @@ type trainCall struct {
 	target   string
 	weight   string // "" for none
 	exposure string // "" for none: loss 'poisson''s offset column
-	key      string // "" for none
-	exclude  []string
-	positive string
-	hasPos   bool
-	task     string // taskAuto, taskClassification or taskRegression
-	impurity bool   // impurity was given
+	// holdout is the source of the rows boosting stops early on, as written ("" for
+	// none), and holdoutQuery the SELECT that reads it.
+	holdout, holdoutQuery string
+	key                   string // "" for none
+	exclude               []string
+	positive              string
+	hasPos                bool
+	task                  string // taskAuto, taskClassification or taskRegression
+	impurity              bool   // impurity was given
 
 	params forest.Params
 }
@@ -138,6 +142,17 @@ func parseTrainCall(args []any, named map[string]any) (*trainCall, error) {
 	}
 	if c.positive, c.hasPos, err = text("positive"); err != nil {
 		return nil, err
+	}
+	if c.holdout, _, err = text("holdout"); err != nil {
+		return nil, err
+	}
+	if c.holdout != "" {
+		if c.holdoutQuery, err = sourceQuery(c.holdout); err != nil {
+			return nil, fail("holdout: %w", err)
+		}
+		if _, both := named["holdout_fraction"].(float64); both {
+			return nil, fail("holdout and holdout_fraction: give one or the other")
+		}
 	}
 	for _, col := range []struct{ opt, v string }{{"weight", c.weight}, {"key", c.key}, {"exposure", c.exposure}} {
 		if col.v != "" && strings.EqualFold(col.v, c.target) {

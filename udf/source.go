@@ -277,6 +277,45 @@ func (c *trainCall) sourceErr(msg string) error {
 	return fmt.Errorf("copse_train %q: source %q: %s", c.name, c.source, msg)
 }
 
+// holdoutColumn marks, in the union of a source and its holdout, the holdout's rows.
+const holdoutColumn = "copse_holdout_row"
+
+// withHoldout returns a copy of c whose query reads the source's rows and then the
+// holdout's (its columns taken by the source's names, so a holdout with more columns
+// is fine and one without a source column is refused by name), with holdoutColumn
+// marking the latter. One read then codes both alike.
+func (h *Host) withHoldout(ctx context.Context, c *trainCall) (*trainCall, error) {
+	cols, err := h.describe(ctx, c)
+	if err != nil {
+		return nil, err
+	}
+	hc := *c
+	hc.query, hc.source = c.holdoutQuery, c.holdout
+	hcols, err := h.describe(ctx, &hc)
+	if err != nil {
+		return nil, fmt.Errorf("%w (the holdout)", err)
+	}
+	list := make([]string, len(cols))
+	for i, col := range cols {
+		if strings.EqualFold(col.name, holdoutColumn) {
+			return nil, fmt.Errorf("copse_train %q: source %q has a column %q, which copse uses to mark the holdout's rows; rename it", c.name, c.source, col.name)
+		}
+		found := false
+		for _, hcol := range hcols {
+			found = found || strings.EqualFold(hcol.name, col.name)
+		}
+		if !found {
+			return nil, fmt.Errorf("copse_train %q: holdout %q has no column %q, which the source has (its columns: %s)", c.name, c.holdout, col.name, columnList(hcols))
+		}
+		list[i] = quoteIdent(col.name)
+	}
+	sel := strings.Join(list, ", ")
+	out := *c
+	out.query = "SELECT " + sel + ", FALSE AS " + holdoutColumn + " FROM (\n" + c.query + "\n) AS copse_source\n" +
+		"UNION ALL\nSELECT " + sel + ", TRUE FROM (\n" + c.holdoutQuery + "\n) AS copse_holdout"
+	return &out, nil
+}
+
 // layout is the role of each source column in a training.
 type layout struct {
 	cols     []srcColumn
@@ -284,6 +323,7 @@ type layout struct {
 	weight   int // -1: none
 	exposure int // -1: none
 	key      int // -1: none
+	holdout  int // -1: none; holdoutColumn when the call has a holdout
 	features []int
 	skip     map[string]bool // excluded columns, not read at all
 	classify int             // 1 classes, 0 numbers, -1 not known until the read
@@ -318,7 +358,7 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 		}
 		return -1, fail("%s %q: no such column in the source (its columns: %s)", opt, name, columnList(cols))
 	}
-	l := &layout{cols: cols, weight: -1, exposure: -1, key: -1, skip: map[string]bool{}}
+	l := &layout{cols: cols, weight: -1, exposure: -1, key: -1, holdout: -1, skip: map[string]bool{}}
 	var err error
 	if l.target, err = find("target", c.target); err != nil {
 		return nil, err
@@ -338,13 +378,22 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 			return nil, err
 		}
 	}
+	if c.holdoutQuery != "" {
+		for i, col := range cols {
+			if col.name == holdoutColumn {
+				l.holdout = i
+			}
+		}
+	}
 	if l.weight >= 0 && l.weight == l.key {
 		return nil, fail("weight and key name the same column %q", cols[l.key].name)
 	}
 	if i := l.exposure; i >= 0 && (i == l.target || i == l.weight || i == l.key) {
 		return nil, fail("exposure %q is also the target, weight or key", cols[i].name)
 	}
-	role := func(i int) bool { return i == l.target || i == l.weight || i == l.key || i == l.exposure }
+	role := func(i int) bool {
+		return i == l.target || i == l.weight || i == l.key || i == l.exposure || i == l.holdout
+	}
 	excluded := map[int]bool{}
 	for _, e := range c.exclude {
 		i, err := find("exclude", e)
@@ -477,6 +526,13 @@ func featureKind(r *duck.ResultColumn, info srcColumn) string {
 // "true". With two classes, the second is the positive one unless positive := names the
 // other.
 func (h *Host) readTraining(ctx context.Context, c *trainCall) (*trainingData, error) {
+	if c.holdoutQuery != "" {
+		hc, err := h.withHoldout(ctx, c)
+		if err != nil {
+			return nil, err
+		}
+		c = hc
+	}
 	cols, err := h.describe(ctx, c)
 	if err != nil {
 		return nil, err
@@ -654,6 +710,26 @@ func (c *trainCall) build(l *layout, byCol []*duck.ResultColumn) (*trainingData,
 		}
 		if err := d.SetExposure(l.cols[l.exposure].name, e); err != nil {
 			return nil, fail("exposure %q: %w", l.cols[l.exposure].name, err)
+		}
+	}
+	if l.holdout >= 0 {
+		v := compact(byCol[l.holdout].Values, keep)
+		mask := make([]bool, len(v))
+		held := 0
+		for i, x := range v {
+			mask[i] = x != 0
+			if mask[i] {
+				held++
+			}
+		}
+		if held == 0 {
+			return nil, fail("holdout %q returned no rows with a target", c.holdout)
+		}
+		if held == len(v) {
+			return nil, fail("the source %q returned no rows with a target beside the holdout", c.source)
+		}
+		if err := d.SetHoldout(mask); err != nil {
+			return nil, fail("holdout: %w", err)
 		}
 	}
 	if l.key >= 0 {
