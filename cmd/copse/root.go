@@ -156,6 +156,7 @@ func newRootCmd(d *Deps) *cobra.Command {
 		newDemoCmd(d, nil),
 		newPlotCmd(d, nil),
 		newServeCmd(d, nil),
+		newModelCmd(d, nil, nil),
 	)
 }
 
