@@ -69,6 +69,7 @@ func New(ctx context.Context, db *sql.DB) (*Host, error) {
 		h.registerEvaluation,
 		h.registerExplain,
 		h.registerValidation,
+		h.registerExport,
 		h.registerPMML,
 	} {
 		if err := register(conn); err != nil {

@@ -157,6 +157,7 @@ func newRootCmd(d *Deps) *cobra.Command {
 		newPlotCmd(d, nil),
 		newServeCmd(d, nil),
 		newModelCmd(d, nil, nil),
+		newExportCmd(d, nil),
 	)
 }
 
