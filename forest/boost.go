@@ -448,7 +448,7 @@ func (br *boostRun) gradients() float64 {
 				// log Σ e^F − F_y; sum lies in [1, K].
 				if unweighted {
 					sl += top - f[yc]
-					logs.mul(sum, &sl)
+					logs.mul(sum)
 				} else {
 					sl += w * (top + math.Log(sum) - f[yc])
 				}
@@ -462,7 +462,7 @@ func (br *boostRun) gradients() float64 {
 					br.mg[int(i)*K+c], br.mh[int(i)*K+c] = t/h, w*h
 				}
 			}
-			logs.flush(&sl)
+			sl += logs.total()
 			sums[2*k], sums[2*k+1] = sw, sl
 		})
 		return sumBlocks(sums)
@@ -484,7 +484,7 @@ func (br *boostRun) gradients() float64 {
 				}
 				if unweighted {
 					sl += max(f, 0) - y*f
-					logs.mul(1+e, &sl)
+					logs.mul(1 + e)
 				} else {
 					sl += w * (max(f, 0) - y*f + math.Log(1+e))
 				}
@@ -520,7 +520,7 @@ func (br *boostRun) gradients() float64 {
 			yreg[i] = r
 			br.hw[i] = w
 		}
-		logs.flush(&sl)
+		sl += logs.total()
 		sums[2*k], sums[2*k+1] = sw, sl
 	})
 	return sumBlocks(sums)
@@ -528,31 +528,35 @@ func (br *boostRun) gradients() float64 {
 
 // logProduct sums logarithms of factors ≥ 1 with one logarithm per logChunk factors (or
 // sooner, should the product pass 1e280): the log of their product, which differs from
-// the sum of their logs by rounding only. The gradient pass takes the
-// training log loss of unweighted rows this way, where one log per row cost as much as
-// the rest of the pass.
+// the sum of their logs by rounding only. The gradient pass takes the training log loss
+// of unweighted rows this way, where one log per row cost as much as the rest of the
+// pass. The sum stays in the struct (not behind a pointer to the caller's), so the
+// loop's other sums stay in registers.
 type logProduct struct {
-	prod float64
-	n    int
+	prod, sum float64
+	n         int
 }
 
 const logChunk = 32
 
-func (lp *logProduct) mul(x float64, sum *float64) {
+func (lp *logProduct) mul(x float64) {
 	if lp.n == 0 {
 		lp.prod = 1
 	}
 	lp.prod *= x
 	if lp.n++; lp.n == logChunk || lp.prod > 1e280 {
-		lp.flush(sum)
+		lp.sum += math.Log(lp.prod)
+		lp.n = 0
 	}
 }
 
-func (lp *logProduct) flush(sum *float64) {
+// total is the sum of the logs of every factor so far.
+func (lp *logProduct) total() float64 {
 	if lp.n > 0 {
-		*sum += math.Log(lp.prod)
+		lp.sum += math.Log(lp.prod)
 		lp.n = 0
 	}
+	return lp.sum
 }
 
 // sumBlocks adds per-block (weight, loss) sums in block order and returns the mean loss.

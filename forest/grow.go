@@ -425,28 +425,33 @@ func (g *grower) rootTotals(dst []float64) {
 func (g *grower) nodeTotals(start, end int, dst []float64) {
 	clear(dst)
 	wts := g.wts[start:end]
+	// Sums in locals: through dst, each add would wait on the previous one's store.
 	if g.set.newton {
 		rw := g.set.rowWeight
+		var s0, s1, s2, s3 float64
 		for i, v := range g.yv[start:end] {
 			w := wts[i]
 			n := 1.0
 			if rw != nil {
 				n = rw[g.rows[start+i]]
 			}
-			dst[0] += w
-			dst[1] += w * v
-			dst[2] += n
-			dst[3] += w * v * v
+			s0 += w
+			s1 += w * v
+			s2 += n
+			s3 += w * v * v
 		}
+		dst[0], dst[1], dst[2], dst[3] = s0, s1, s2, s3
 		return
 	}
 	if g.set.task == Regression {
+		var s0, s1, s2 float64
 		for i, v := range g.yv[start:end] {
 			w := wts[i]
-			dst[0] += w
-			dst[1] += w * v
-			dst[2] += w * v * v
+			s0 += w
+			s1 += w * v
+			s2 += w * v * v
 		}
+		dst[0], dst[1], dst[2] = s0, s1, s2
 		return
 	}
 	for i, c := range g.lab[start:end] {
