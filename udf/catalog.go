@@ -213,6 +213,7 @@ func (h *Host) saveModel(ctx context.Context, name string, m *forest.Model, sour
 	if err := tx.Commit(); err != nil {
 		return Entry{}, fmt.Errorf("save model %q: %w", name, err)
 	}
+	h.resolved.reset()
 	return e, nil
 }
 
@@ -247,6 +248,19 @@ func (h *Host) resolve(ctx context.Context, ref string) (Entry, error) {
 	if err != nil {
 		return Entry{}, err
 	}
+	gen, hit, ok := h.resolved.get(r.String())
+	if ok {
+		return hit, nil
+	}
+	e, err := h.lookUp(ctx, r)
+	if err == nil {
+		h.resolved.put(r.String(), gen, e)
+	}
+	return e, err
+}
+
+// lookUp reads the catalog entry that r names.
+func (h *Host) lookUp(ctx context.Context, r modelRef) (Entry, error) {
 	q := `SELECT ` + entryColumns + `, feature_types FROM ` + catalogTable + ` WHERE name = ?`
 	args := []any{r.name}
 	if r.version > 0 {
@@ -374,6 +388,7 @@ func (h *Host) dropModel(ctx context.Context, ref string) (int, error) {
 	if err := tx.Commit(); err != nil {
 		return 0, fmt.Errorf("drop model %q: %w", ref, err)
 	}
+	h.resolved.reset()
 	h.cache.evict(r.name, r.version)
 	return int(n), nil
 }
@@ -450,4 +465,45 @@ func (c *modelCache) evict(name string, version int) {
 			delete(c.entries, k)
 		}
 	}
+}
+
+// resolveCache keeps catalog look-ups by reference ('name' or 'name@3'), so that
+// scoring a few rows does not query the catalog each time (a look-up took most of a
+// one-row copse_score). Every save and drop through the host empties it, after its
+// commit. The catalog is written only through copse's functions; a row changed by hand
+// in copse.models is seen after the next save or drop.
+type resolveCache struct {
+	mu      sync.Mutex
+	gen     uint64
+	entries map[string]Entry
+}
+
+// get returns the cached entry of ref (ok), or the generation to hand to put after
+// looking it up.
+func (c *resolveCache) get(ref string) (gen uint64, e Entry, ok bool) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	e, ok = c.entries[ref]
+	return c.gen, e, ok
+}
+
+// put keeps e for ref, unless a save or drop came between the look-up and now.
+func (c *resolveCache) put(ref string, gen uint64, e Entry) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if gen != c.gen {
+		return
+	}
+	if c.entries == nil || len(c.entries) >= 1024 {
+		c.entries = map[string]Entry{}
+	}
+	c.entries[ref] = e
+}
+
+// reset forgets every entry.
+func (c *resolveCache) reset() {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.gen++
+	c.entries = nil
 }

@@ -17,9 +17,10 @@ const minPoolConns = 8
 
 // Host owns one DuckDB database with the copse functions registered on it.
 type Host struct {
-	db    *sql.DB
-	cache modelCache
-	jobs  jobTable
+	db       *sql.DB
+	cache    modelCache
+	resolved resolveCache
+	jobs     jobTable
 
 	mu       sync.Mutex
 	attached map[uint64]context.Context // DuckDB connection id → statement context

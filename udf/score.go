@@ -291,7 +291,7 @@ type input struct {
 }
 
 // scorer is a model fitted to one row layout. It is read-only once built, so DuckDB's
-// threads share it; each call takes its scratch space from pool.
+// threads share it; each call takes its scratch space from scratchPool.
 type scorer struct {
 	model    *forest.Model
 	label    string // name@version, for messages
@@ -303,10 +303,15 @@ type scorer struct {
 	// exposure is the row field holding the exposure of a Poisson model trained with
 	// one, or -1: the prediction, a rate per unit of exposure, is multiplied by it.
 	exposure int
-	pool     sync.Pool // *scratch
 }
 
-// scratch is one executor call's working memory, sized for DuckDB's largest chunk.
+// scratchPool holds executor scratch for every scorer. One pool, not one per scorer: a
+// pool lives on for two garbage collections after its last use, and a statement that
+// scores a few rows binds a scorer of its own, so per-scorer pools kept hundreds of MB
+// of idle scratch in a server answering small queries (and the heap grew with them).
+var scratchPool = sync.Pool{New: func() any { return new(scratch) }}
+
+// scratch is one executor call's working memory, grown to the chunks it has seen.
 type scratch struct {
 	block  []float64 // row-major rows in model coding
 	col    []float64 // one converted input column
@@ -315,8 +320,22 @@ type scratch struct {
 	pred   []float64 // Width numbers per row
 }
 
-// maxChunk is DuckDB's vector size (STANDARD_VECTOR_SIZE): no chunk has more rows.
-const maxChunk = 2048
+// fit makes room for a chunk of n rows of p features and W outputs.
+func (sc *scratch) fit(n, p, W int) {
+	sc.block = room(sc.block, n*p)
+	sc.col = room(sc.col, n)
+	sc.codes = room(sc.codes, n)
+	sc.leaves = room(sc.leaves, n)
+	sc.pred = room(sc.pred, n*W)
+}
+
+// room returns s with length k, reallocated when its capacity is short.
+func room[T any](s []T, k int) []T {
+	if cap(s) < k {
+		return make([]T, k)
+	}
+	return s[:k]
+}
 
 // checkTemporal refuses a DATE field for a feature trained from a TIMESTAMP column, and
 // the reverse: one counts days, the other seconds. Without a recorded kind (models saved
@@ -451,16 +470,6 @@ func newScorer(m *forest.Model, e Entry, row duck.TypeInfo) (*scorer, error) {
 			s.classIdx[c] = k
 		}
 	}
-	p, W := len(m.Features), m.Width()
-	s.pool.New = func() any {
-		return &scratch{
-			block:  make([]float64, maxChunk*p),
-			col:    make([]float64, maxChunk),
-			codes:  make([]int32, maxChunk),
-			leaves: make([]int32, maxChunk),
-			pred:   make([]float64, maxChunk*W),
-		}
-	}
 	return s, nil
 }
 
@@ -505,10 +514,11 @@ func (s *scorer) run(site *scoreSite, in *duck.ScalarInput, out *duck.ScalarOutp
 	if sel != nil {
 		rows = len(sel)
 	}
-	sc := s.pool.Get().(*scratch)
-	defer s.pool.Put(sc)
 	m := s.model
 	p, W := len(m.Features), m.Width()
+	sc := scratchPool.Get().(*scratch)
+	defer scratchPool.Put(sc)
+	sc.fit(n, p, W)
 	block := sc.block[:rows*p]
 	for f := range s.inputs {
 		inp := &s.inputs[f]

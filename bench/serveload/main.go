@@ -19,6 +19,7 @@ import (
 	"math/rand/v2"
 	"net"
 	"os"
+	"runtime/pprof"
 	"sort"
 	"strconv"
 	"strings"
@@ -48,14 +49,15 @@ func main() {
 	addr := flag.String("addr", "", "load a running server at HOST:PORT instead of one in this process")
 	pid := flag.Int("pid", 0, "with -addr: the server's process ID, for its memory")
 	setup := flag.Bool("setup", false, "with -addr: create the table and model on the server first")
+	memProfile := flag.String("memprofile", "", "write a heap profile of this process here at the end")
 	flag.Parse()
-	if err := run(*clients, *duration, *rows, *trees, *addr, *pid, *setup); err != nil {
+	if err := run(*clients, *duration, *rows, *trees, *addr, *pid, *setup, *memProfile); err != nil {
 		fmt.Fprintln(os.Stderr, "serveload:", err)
 		os.Exit(1)
 	}
 }
 
-func run(clients int, duration time.Duration, nrows, trees int, addr string, pid int, setup bool) error {
+func run(clients int, duration time.Duration, nrows, trees int, addr string, pid int, setup bool, memProfile string) error {
 	ctx := context.Background()
 	if addr == "" {
 		h, err := udf.Open(ctx, "")
@@ -132,6 +134,16 @@ func run(clients int, duration time.Duration, nrows, trees int, addr string, pid
 		nerr += errs[i]
 	}
 	sort.Slice(all, func(a, b int) bool { return all[a] < all[b] })
+	if memProfile != "" {
+		f, err := os.Create(memProfile)
+		if err == nil {
+			err = pprof.WriteHeapProfile(f)
+			f.Close()
+		}
+		if err != nil {
+			fmt.Fprintln(os.Stderr, "serveload: memprofile:", err)
+		}
+	}
 	fmt.Printf("clients %d, %v: %d queries, %.0f qps, p50 %v, p99 %v, errors %d, server RSS %s → %s\n",
 		clients, elapsed.Round(time.Millisecond), len(all), float64(len(all))/elapsed.Seconds(),
 		quantile(all, 0.50), quantile(all, 0.99), nerr, fmtKiB(memStart), fmtKiB(memEnd))
