@@ -84,6 +84,9 @@ type explainSource struct {
 	feat   []string // the source column feeding each model feature
 	key    string   // the key column, "" for none
 	keyInt bool     // the key column holds integers: the key is returned as BIGINT
+	// ordinal keys rows by their position in the source (1 for the first row read),
+	// when no key := names a column.
+	ordinal bool
 }
 
 // exIntegerTypes are the types whose values a BIGINT key holds exactly.
@@ -92,7 +95,7 @@ var exIntegerTypes = map[string]bool{"TINYINT": true, "SMALLINT": true, "INTEGER
 
 // bindSource checks the source against the model without running it (DESCRIBE binds the
 // query only): every feature has a column of a fitting type, and the key column exists.
-// A missing key := is an error when needKey is set.
+// Without key := and with needKey set, rows are keyed by their position in the source.
 func (h *Host) bindSource(ctx context.Context, fn string, m *forest.Model, e Entry, src any, named map[string]any, needKey bool) (*explainSource, error) {
 	s, ok := src.(string)
 	if !ok {
@@ -167,8 +170,8 @@ func (h *Host) bindSource(ctx context.Context, fn string, m *forest.Model, e Ent
 		}
 		es.keyInt = exIntegerTypes[strings.ToUpper(cols[i].typ)]
 	} else if needKey {
-		return nil, fmt.Errorf("%s: %w: key := 'column' is required: name the source column that identifies each row (source %q has columns %s)",
-			fn, ErrCall, es.source, columnList(cols))
+		// No key column named: each row is keyed by its position in the source.
+		es.ordinal, es.keyInt = true, true
 	}
 	return es, nil
 }
@@ -198,11 +201,12 @@ func (es *explainSource) sourceErr(err error) error {
 
 // exSourceRows is a source read in a model's coding, with what the results show of it.
 type exSourceRows struct {
-	n    int
-	cols [][]float64          // per model feature, as for forest.Model.Predict
-	raw  []*duck.ResultColumn // per model feature, the column as read (for value texts)
-	keys *duck.ResultColumn   // the key column, read as text; nil without a key
-	ints []int64              // keyInt: each key level as a number
+	n       int
+	cols    [][]float64          // per model feature, as for forest.Model.Predict
+	raw     []*duck.ResultColumn // per model feature, the column as read (for value texts)
+	keys    *duck.ResultColumn   // the key column, read as text; nil without a key
+	ints    []int64              // keyInt: each key level as a number
+	ordinal bool                 // the key is the row's position in the source
 }
 
 // read runs the source on a pooled connection and codes its rows for the model.
@@ -228,7 +232,7 @@ func (es *explainSource) read(ctx context.Context, h *Host, m *forest.Model, e E
 	for i := range res {
 		byName[res[i].Name] = &res[i]
 	}
-	rs := &exSourceRows{cols: make([][]float64, len(m.Features)), raw: make([]*duck.ResultColumn, len(m.Features))}
+	rs := &exSourceRows{cols: make([][]float64, len(m.Features)), raw: make([]*duck.ResultColumn, len(m.Features)), ordinal: es.ordinal}
 	if len(res) > 0 {
 		rs.n = max(len(res[0].Values), len(res[0].Codes))
 	}
@@ -310,6 +314,10 @@ func (es *explainSource) read(ctx context.Context, h *Host, m *forest.Model, e E
 
 // setKey writes row i's key into column col.
 func (rs *exSourceRows) setKey(out *duck.Chunk, col, j, i int) {
+	if rs.ordinal {
+		out.SetInt64(col, j, int64(i+1))
+		return
+	}
 	c := rs.keys.Codes[i]
 	switch {
 	case c < 0:

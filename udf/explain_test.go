@@ -419,7 +419,6 @@ func TestExplainBadInput(t *testing.T) {
 		{"FROM copse_explain('nope', 'gen', key := 'id')", []string{"copse_explain", "model not found", `"nope"`}},
 		{"FROM copse_reasons('nope', 'gen', toward := 'late', key := 'id')", []string{"copse_reasons", `"nope"`}},
 		{"FROM copse_dependence('nope', 'gen', 'x1')", []string{"copse_dependence", `"nope"`}},
-		{"FROM copse_explain('cls', 'gen')", []string{"copse_explain", "key := 'column' is required", `"id"`}},
 		{"FROM copse_explain('cls', 'gen', key := 'nope')", []string{"copse_explain", `key "nope"`, "no such column", `"tag"`}},
 		{"FROM copse_explain('cls', 'gen', key := 'x1')", []string{"copse_explain", `key "x1"`, "also a feature"}},
 		{"FROM copse_explain('cls', 'gen', key := 'id', top := 0)", []string{"copse_explain", "top := 0", "whole number"}},
@@ -435,11 +434,9 @@ func TestExplainBadInput(t *testing.T) {
 		{"FROM copse_reasons('cls', 'gen', toward := 'early', key := 'id')", []string{"copse_reasons", "toward := 'early'", "'late', 'on time'"}},
 		{"FROM copse_reasons('cls', 'gen', key := 'id')", []string{"copse_reasons", "toward := is required", "'late', 'on time'"}},
 		{"FROM copse_reasons('reg', 'gen', toward := 'late', key := 'id')", []string{"copse_reasons", "toward := 'late'", "'high' or 'low'"}},
-		{"FROM copse_reasons('reg', 'gen', toward := 'high')", []string{"copse_reasons", "key := 'column' is required"}},
 		{"FROM copse_reasons('reg', 'gen', toward := 'high', key := 'id', top := -1)", []string{"copse_reasons", "top := -1"}},
 		{"FROM copse_dependence('reg', 'gen', 'nope')", []string{"copse_dependence", `no feature "nope"`, `"x1"`}},
 		{"FROM copse_dependence('reg', 'gen', 'x1', points := 0)", []string{"copse_dependence", "points := 0"}},
-		{"FROM copse_dependence('reg', 'gen', 'x1', individual := true)", []string{"copse_dependence", "key := 'column' is required"}},
 		{"FROM copse_dependence('reg', 'SELECT * FROM gen WHERE false', 'x1')", []string{"copse_dependence", "no rows"}},
 	} {
 		trWantErr(t, db, c.q, c.want...)
@@ -475,4 +472,30 @@ func BenchmarkExplain(b *testing.B) {
 		trRows(b, db, fmt.Sprintf("SELECT count(*) FROM copse_explain('big', 'SELECT * FROM gen ORDER BY id LIMIT %d', key := 'id', threads := 2)", rows))
 	}
 	b.ReportMetric(float64(rows*b.N)/b.Elapsed().Seconds(), "rows/s")
+}
+
+// Without key :=, rows are keyed by their position in the source: the same rows as
+// with key := 'id' once each id is replaced by its row's position (gen is stored in id
+// order), for explanations, reasons and individual curves.
+func TestExplainSQLPositionKey(t *testing.T) {
+	h := openHost(t)
+	db := h.DB()
+	exTable(t, db)
+	bsTrain(t, db, "cls", "SELECT "+exFeatures+", y_binary FROM gen", "target := 'y_binary', trees := 3")
+	bsTrain(t, db, "reg", "SELECT "+exFeatures+", y_value FROM gen", "target := 'y_value', trees := 3")
+	pos := "(SELECT id, row_number() OVER (ORDER BY id) AS k FROM gen) p"
+	for _, q := range [][2]string{
+		{"SELECT key, output, feature, contribution FROM copse_explain('cls', 'gen')",
+			"SELECT p.k, e.output, e.feature, e.contribution FROM copse_explain('cls', 'gen', key := 'id') e JOIN " + pos + " ON p.id = e.key"},
+		{"SELECT key, rank, feature, contribution FROM copse_reasons('reg', 'gen', toward := 'high')",
+			"SELECT p.k, e.rank, e.feature, e.contribution FROM copse_reasons('reg', 'gen', toward := 'high', key := 'id') e JOIN " + pos + " ON p.id = e.key"},
+		{"SELECT key, point, prediction FROM copse_dependence('reg', 'gen', 'x1', individual := true)",
+			"SELECT p.k, e.point, e.prediction FROM copse_dependence('reg', 'gen', 'x1', individual := true, key := 'id') e JOIN " + pos + " ON p.id = e.key"},
+	} {
+		n := trRows(t, db, "SELECT count(*) FROM ("+q[0]+")")
+		diff := trRows(t, db, "SELECT count(*) FROM (("+q[0]+") EXCEPT ALL ("+q[1]+")) UNION ALL SELECT count(*) FROM (("+q[1]+") EXCEPT ALL ("+q[0]+"))")
+		if n[0][0] == "0" || diff[0][0] != "0" || diff[1][0] != "0" {
+			t.Errorf("%s: %s rows, %v differ from the key := 'id' rows", q[0], n[0][0], diff)
+		}
+	}
 }
