@@ -497,7 +497,9 @@ func (c *resolveCache) put(ref string, gen uint64, e Entry) {
 	if c.entries == nil || len(c.entries) >= 1024 {
 		c.entries = map[string]Entry{}
 	}
-	c.entries[ref] = e
+	// A clone: ref may point into a DuckDB vector (a zero-copy string argument) whose
+	// bytes change once the chunk is done, which would corrupt the map.
+	c.entries[strings.Clone(ref)] = e
 }
 
 // reset forgets every entry.
