@@ -112,24 +112,14 @@ func (h *Host) bindSource(ctx context.Context, fn string, m *forest.Model, e Ent
 		return nil, es.sourceErr(err)
 	}
 	find := func(name string) (int, error) {
-		exact, folded, nf := -1, -1, 0
-		for i, c := range cols {
-			if c.name == name && exact < 0 {
-				exact = i
-			}
-			if strings.EqualFold(c.name, name) {
-				folded, nf = i, nf+1
-			}
-		}
+		i, twice, cases := columnIndex(cols, name)
 		switch {
-		case exact >= 0:
-			return exact, nil
-		case nf == 1:
-			return folded, nil
-		case nf > 1:
+		case twice:
+			return -1, fmt.Errorf("source %q has two columns named %q", es.source, name)
+		case cases:
 			return -1, fmt.Errorf("source %q has several columns named %q in different cases", es.source, name)
 		}
-		return -1, nil
+		return i, nil
 	}
 	es.feat = make([]string, len(m.Features))
 	for f, fi := range m.Features {

@@ -400,10 +400,14 @@ func TestExportSQLMatchesScorePostgres(t *testing.T) {
 // Trees are depth-capped: a fully grown 500-tree forest exports to about 50 MB of SQL,
 // which DuckDB did not finish planning (3 minutes, 17 GB of memory, then stopped).
 func BenchmarkExportSQLScore(b *testing.B) {
+	rows := 100000
+	if v, err := strconv.Atoi(os.Getenv("COPSE_BENCH_ROWS")); err == nil && v > 0 {
+		rows = v // e.g. COPSE_BENCH_ROWS=1000000 for the scale of the closing notes
+	}
 	h := openHost(b)
 	db := h.DB()
 	xsMake(b, db, "tr", 2000, 1, false, false)
-	xsMake(b, db, "big", 100000, 3, true, false)
+	xsMake(b, db, "big", rows, 3, true, false)
 	file := filepath.Join(b.TempDir(), "big.parquet")
 	mustExec(b, db, "COPY big TO '"+file+"' (FORMAT parquet)")
 	plain, err := sql.Open("duckdb", "")

@@ -316,6 +316,34 @@ func (h *Host) withHoldout(ctx context.Context, c *trainCall) (*trainCall, error
 	return &out, nil
 }
 
+// columnIndex finds name among cols as SQL identifiers match: the column of exactly that
+// name, or else the one column equal to it ignoring case (-1: none). twice reports two
+// columns of exactly that name; cases reports several of it in different cases and
+// none exact.
+func columnIndex(cols []srcColumn, name string) (i int, twice, cases bool) {
+	exact, folded, nf := -1, -1, 0
+	for j, c := range cols {
+		if c.name == name {
+			if exact >= 0 {
+				return -1, true, false
+			}
+			exact = j
+		}
+		if strings.EqualFold(c.name, name) {
+			folded, nf = j, nf+1
+		}
+	}
+	switch {
+	case exact >= 0:
+		return exact, false, false
+	case nf == 1:
+		return folded, false, false
+	case nf > 1:
+		return -1, false, true
+	}
+	return -1, false, false
+}
+
 // layout is the role of each source column in a training.
 type layout struct {
 	cols     []srcColumn
@@ -336,27 +364,16 @@ func (c *trainCall) resolve(cols []srcColumn) (*layout, error) {
 		return fmt.Errorf("copse_train %q: "+format, append([]any{c.name}, a...)...)
 	}
 	find := func(opt, name string) (int, error) {
-		exact, folded, nf := -1, -1, 0
-		for i, col := range cols {
-			if col.name == name {
-				if exact >= 0 {
-					return -1, fail("%s %q: the source has two columns of that name", opt, name)
-				}
-				exact = i
-			}
-			if strings.EqualFold(col.name, name) {
-				folded, nf = i, nf+1
-			}
-		}
+		i, twice, cases := columnIndex(cols, name)
 		switch {
-		case exact >= 0:
-			return exact, nil
-		case nf == 1:
-			return folded, nil
-		case nf > 1:
+		case twice:
+			return -1, fail("%s %q: the source has two columns of that name", opt, name)
+		case cases:
 			return -1, fail("%s %q: the source has several columns of that name in different cases", opt, name)
+		case i < 0:
+			return -1, fail("%s %q: no such column in the source (its columns: %s)", opt, name, columnList(cols))
 		}
-		return -1, fail("%s %q: no such column in the source (its columns: %s)", opt, name, columnList(cols))
+		return i, nil
 	}
 	l := &layout{cols: cols, weight: -1, exposure: -1, key: -1, holdout: -1, skip: map[string]bool{}}
 	var err error
