@@ -121,6 +121,7 @@ type grower struct {
 	blockTot     []float64
 	blockHist    []float64 // row blocks' histograms past the first (boosting)
 	blockLeft    []int
+	blockRight   []int // where each block's right rows go in a partition
 	best         splitInfo
 	parentScore  float64 // score of the node being split
 	stack        []pending

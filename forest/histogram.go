@@ -172,19 +172,32 @@ func partitionRows[B uint8 | uint16](g *grower, col []B, e pending, dir []uint8,
 			rt[j] += tot[T+j]
 		}
 	}
+	// The right rows' places follow from the left counts, and they come from the
+	// scratch into a range no left row occupies any more: the blocks copy at once.
+	g.blockRight = slices.Grow(g.blockRight[:0], blocks)[:blocks]
 	pos := start + nl
 	for k := range blocks {
+		g.blockRight[k] = pos
+		pos += min(end, start+(k+1)*partitionBlock) - start - k*partitionBlock - g.blockLeft[k]
+	}
+	back := func(k int) {
 		a := start + k*partitionBlock
-		b := min(end, a+partitionBlock)
-		m := b - a - g.blockLeft[k]
-		copy(g.rows[pos:pos+m], g.tmpRows[a:a+m])
-		copy(g.wts[pos:pos+m], g.tmpW[a:a+m])
+		m := min(end, a+partitionBlock) - a - g.blockLeft[k]
+		dst := g.blockRight[k]
+		copy(g.rows[dst:dst+m], g.tmpRows[a:a+m])
+		copy(g.wts[dst:dst+m], g.tmpW[a:a+m])
 		if g.lab != nil {
-			copy(g.lab[pos:pos+m], g.tmpLab[a:a+m])
+			copy(g.lab[dst:dst+m], g.tmpLab[a:a+m])
 		} else {
-			copy(g.yv[pos:pos+m], g.tmpY[a:a+m])
+			copy(g.yv[dst:dst+m], g.tmpY[a:a+m])
 		}
-		pos += m
+	}
+	if g.cfg.threads <= 1 {
+		for k := range blocks {
+			back(k)
+		}
+	} else {
+		parallelFor(blocks, g.cfg.threads, back)
 	}
 	return nl
 }
