@@ -178,11 +178,23 @@ func (fr *fitRun) boost(loss Loss, threads int) ([]*Tree, *Boost, error) {
 					yreg[i], br.hw[i] = br.mg[int(i)*K+c], br.mh[int(i)*K+c]
 				}
 			}
-			rows, wts = rows[:0], wts[:0]
-			for k, i := range br.train {
-				if pick == nil || pick[k] {
-					rows = append(rows, i)
-					wts = append(wts, br.hw[i])
+			if pick == nil {
+				// Every training row: copied in blocks on all threads.
+				n := len(br.train)
+				rows, wts = rows[:n], wts[:n]
+				parallelFor((n+boostBlock-1)/boostBlock, threads, func(k int) {
+					for j := k * boostBlock; j < min(n, (k+1)*boostBlock); j++ {
+						i := br.train[j]
+						rows[j], wts[j] = i, br.hw[i]
+					}
+				})
+			} else {
+				rows, wts = rows[:0], wts[:0]
+				for k, i := range br.train {
+					if pick[k] {
+						rows = append(rows, i)
+						wts = append(wts, br.hw[i])
+					}
 				}
 			}
 			t, err := g.grow(rows, wts, rng)

@@ -183,9 +183,12 @@ func (g *grower) grow(rows []int32, wts []float64, rng *rand.Rand) (*Tree, error
 	T := set.totalWidth
 	g.rows, g.wts, g.rng = rows, wts, rng
 	if set.task == Regression {
-		for i, r := range rows {
-			g.yv[i] = set.yreg[r]
-		}
+		n := len(rows)
+		parallelFor((n+partitionBlock-1)/partitionBlock, g.cfg.threads, func(k int) {
+			for i := k * partitionBlock; i < min(n, (k+1)*partitionBlock); i++ {
+				g.yv[i] = set.yreg[rows[i]]
+			}
+		})
 	} else {
 		for i, r := range rows {
 			g.lab[i] = set.ycls[r]
