@@ -342,51 +342,49 @@ func softmax(v []float64) {
 	}
 }
 
-// quantile is the weighted α-quantile of y − F over rows (F = 0 when score is nil): the
-// least value at which the sorted rows' cumulative weight reaches α of their total.
+// quantile is the weighted α-quantile of y − F over rows (F = 0 when score is nil).
 func (br *boostRun) quantile(rows []int32, alpha float64, score []float64) float64 {
 	d := br.fr.d
-	type rw struct{ r, w float64 }
-	v := make([]rw, len(rows))
-	total := 0.0
+	v := make([]weighted, len(rows))
 	for k, i := range rows {
 		r := br.y[i]
 		if score != nil {
 			r -= score[i]
 		}
-		v[k] = rw{r, d.weight(int(i))}
-		total += v[k].w
+		v[k] = weighted{r, d.weight(int(i))}
 	}
-	slices.SortFunc(v, func(a, b rw) int { return cmp.Compare(a.r, b.r) })
-	cum := 0.0
-	for _, e := range v {
-		cum += e.w
-		if cum >= alpha*total {
-			return e.r
-		}
-	}
-	return v[len(v)-1].r
+	return weightedQuantile(v, alpha)
 }
 
 // huberDelta is the huberAlpha quantile of |y − F| over the training rows.
 func (br *boostRun) huberDelta() float64 {
 	d := br.fr.d
-	type rw struct{ r, w float64 }
-	v := make([]rw, len(br.train))
-	total := 0.0
+	v := make([]weighted, len(br.train))
 	for k, i := range br.train {
-		v[k] = rw{math.Abs(br.y[i] - br.score[i]), d.weight(int(i))}
-		total += v[k].w
+		v[k] = weighted{math.Abs(br.y[i] - br.score[i]), d.weight(int(i))}
 	}
-	slices.SortFunc(v, func(a, b rw) int { return cmp.Compare(a.r, b.r) })
+	return weightedQuantile(v, huberAlpha)
+}
+
+// weighted is a value and its row weight.
+type weighted struct{ v, w float64 }
+
+// weightedQuantile is the least value at which the sorted values' cumulative weight
+// reaches α of their total (v is reordered).
+func weightedQuantile(v []weighted, alpha float64) float64 {
+	total := 0.0
+	for _, e := range v {
+		total += e.w
+	}
+	slices.SortFunc(v, func(a, b weighted) int { return cmp.Compare(a.v, b.v) })
 	cum := 0.0
 	for _, e := range v {
 		cum += e.w
-		if cum >= huberAlpha*total {
-			return e.r
+		if cum >= alpha*total {
+			return e.v
 		}
 	}
-	return v[len(v)-1].r
+	return v[len(v)-1].v
 }
 
 // refit replaces the Newton values of a fresh tree's leaves, for the losses whose
