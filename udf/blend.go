@@ -107,25 +107,10 @@ func (h *Host) bindBlend(call duck.TableCall) (*duck.TableBinding, error) {
 	if err != nil {
 		return nil, err
 	}
-	connID := call.ConnID
-	return &duck.TableBinding{
-		Columns: trainColumns,
-		Init: func() (duck.FillFunc, error) {
-			var e Entry
-			return onceRows(func() (int, error) {
-				var err error
-				e, err = h.blend(h.contextOf(connID), c)
-				return 1, err
-			}, func(out *duck.Chunk, k, _ int) {
-				setEntryHead(out, k, e)
-				out.SetInt64(6, k, 0)
-				out.SetInt64(7, k, int64(e.Features))
-				out.SetInt64(8, k, int64(e.Trees))
-				setOOB(out, 9, k, e) // learned weights: the blend's loss on the holdout
-				out.SetFloat64(11, k, 0)
-			}), nil
-		},
-	}, nil
+	return h.savingBinding(call.ConnID, func(ctx context.Context) (trainResult, error) {
+		e, err := h.blend(ctx, c)
+		return trainResult{entry: e}, err
+	}), nil
 }
 
 // blend loads the members, builds the blend and saves it as a new version of c.name.

@@ -80,25 +80,10 @@ func (h *Host) bindImport(call duck.TableCall) (*duck.TableBinding, error) {
 	if err != nil {
 		return nil, fmt.Errorf("%s %q: %w", fn, name, err)
 	}
-	connID := call.ConnID
-	return &duck.TableBinding{
-		Columns: trainColumns,
-		Init: func() (duck.FillFunc, error) {
-			var e Entry
-			return onceRows(func() (int, error) {
-				var err error
-				e, err = h.importModel(h.contextOf(connID), name, m, fmt.Sprintf("imported from PMML (%d bytes)", len(text)))
-				return 1, err
-			}, func(out *duck.Chunk, k, _ int) {
-				setEntryHead(out, k, e)
-				out.SetInt64(6, k, 0)
-				out.SetInt64(7, k, int64(e.Features))
-				out.SetInt64(8, k, int64(e.Trees))
-				setOOB(out, 9, k, e)
-				out.SetFloat64(11, k, 0)
-			}), nil
-		},
-	}, nil
+	return h.savingBinding(call.ConnID, func(ctx context.Context) (trainResult, error) {
+		e, err := h.importModel(ctx, name, m, fmt.Sprintf("imported from PMML (%d bytes)", len(text)))
+		return trainResult{entry: e}, err
+	}), nil
 }
 
 // importModel saves m as a new version of name unless name already holds a model of

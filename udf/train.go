@@ -55,14 +55,21 @@ func (h *Host) bindTrain(call duck.TableCall) (*duck.TableBinding, error) {
 	if err := c.checkLoss(l, cols); err != nil {
 		return nil, err
 	}
-	connID := call.ConnID
+	return h.savingBinding(call.ConnID, func(ctx context.Context) (trainResult, error) {
+		return h.train(ctx, c)
+	}), nil
+}
+
+// savingBinding is the binding of a function that stores a model version in its first
+// fill (save, under the running statement's context) and returns copse_train's row.
+func (h *Host) savingBinding(connID uint64, save func(ctx context.Context) (trainResult, error)) *duck.TableBinding {
 	return &duck.TableBinding{
 		Columns: trainColumns,
 		Init: func() (duck.FillFunc, error) {
 			var r trainResult
 			return onceRows(func() (int, error) {
 				var err error
-				r, err = h.train(h.contextOf(connID), c)
+				r, err = save(h.contextOf(connID))
 				return 1, err
 			}, func(out *duck.Chunk, k, _ int) {
 				e := r.entry
@@ -70,11 +77,11 @@ func (h *Host) bindTrain(call duck.TableCall) (*duck.TableBinding, error) {
 				out.SetInt64(6, k, int64(r.skipped))
 				out.SetInt64(7, k, int64(e.Features))
 				out.SetInt64(8, k, int64(e.Trees))
-				setOOB(out, 9, k, e)
+				setOOB(out, 9, k, e) // a blend with learned weights: its holdout loss
 				out.SetFloat64(11, k, r.seconds)
 			}), nil
 		},
-	}, nil
+	}
 }
 
 // trainResult is what one training reports.
